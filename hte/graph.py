@@ -1,0 +1,40 @@
+"""Small coloured graphs: the common currency between clusters, canonical forms and the ED kernel."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class ColouredGraph:
+    """An undirected simple graph with integer vertex colours and integer edge colours.
+
+    Vertices are 0..n_vertices-1.  ``edges`` holds (u, v, colour) with u < v.  On a lattice the vertex colour
+    indexes the site class and the edge colour indexes the coupling label (or a distinct (Jxy, Jz) value).
+    """
+
+    n_vertices: int
+    vertex_colours: tuple[int, ...]
+    edges: tuple[tuple[int, int, int], ...]
+
+    @property
+    def n_edges(self) -> int:
+        return len(self.edges)
+
+    def degree(self) -> list[int]:
+        deg = [0] * self.n_vertices
+        for u, v, _ in self.edges:
+            deg[u] += 1
+            deg[v] += 1
+        return deg
+
+    def to_networkx(self):
+        """A networkx.Graph with node attribute ``colour`` and edge attribute ``colour`` (for checks)."""
+        import networkx as nx
+
+        g = nx.Graph()
+        for i, c in enumerate(self.vertex_colours):
+            g.add_node(i, colour=c)
+        for u, v, c in self.edges:
+            g.add_edge(u, v, colour=c)
+        return g
