@@ -266,3 +266,17 @@ def canonical_key(graph: ColouredGraph) -> str:
     """Canonical text key: equal for two graphs exactly when they are isomorphic as coloured graphs."""
     cert, _ = canonical_certificate(graph.n_vertices, *_arrays(graph))
     return certificate_key(cert)
+
+
+def key_to_graph(key: str) -> ColouredGraph:
+    """Inverse of :func:`certificate_key`: the canonically labelled graph a key stands for."""
+    n_text, colours_text, edges_text = key.split("|")
+    n = int(n_text)
+    colours = tuple(int(c) for c in colours_text.split(".")) if n else ()
+    edges = []
+    if edges_text:
+        for item in edges_text.split(","):
+            pair, colour = item.split(":")
+            u, v = pair.split("-")
+            edges.append((int(u), int(v), int(colour)))
+    return ColouredGraph(n, colours, tuple(edges))
