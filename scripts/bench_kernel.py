@@ -1,0 +1,71 @@
+"""Time the exact cluster kernel against the dense float reference on S = 1/2 Heisenberg paths and rings.
+
+Usage: .venv/bin/python scripts/bench_kernel.py [--order 12] [--sizes 8-13] [--dense-max 12] [--repeat 1]
+
+Prints one table row per graph: sites, bonds, time of hte.exact.cluster_cumulants (after one warm-up call that
+compiles the numba kernel), time of hte.exact.dense_cumulants_float (for N <= --dense-max), their ratio, and the
+largest relative difference of the m2 coefficients between the two.  Runs sequentially on one process.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+from fractions import Fraction
+
+from hte.exact import ClusterHamiltonian, cluster_cumulants, dense_cumulants_float
+
+HALF = Fraction(1, 2)
+
+
+def heisenberg(n_sites: int, edges: list[tuple[int, int]]) -> ClusterHamiltonian:
+    return ClusterHamiltonian(spins=(HALF,) * n_sites, bonds=tuple((u, v, 1, 1) for u, v in edges))
+
+
+def path_edges(n_sites: int) -> list[tuple[int, int]]:
+    return [(i, i + 1) for i in range(n_sites - 1)]
+
+
+def ring_edges(n_sites: int) -> list[tuple[int, int]]:
+    return path_edges(n_sites) + [(n_sites - 1, 0)]
+
+
+def best_time(function, repeat: int):
+    times, result = [], None
+    for _ in range(repeat):
+        start = time.perf_counter()
+        result = function()
+        times.append(time.perf_counter() - start)
+    return min(times), result
+
+
+def parse_sizes(text: str) -> range:
+    low, _, high = text.partition("-")
+    return range(int(low), int(high or low) + 1)
+
+
+def main(argv=None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--order", type=int, default=12)
+    parser.add_argument("--sizes", type=parse_sizes, default=parse_sizes("8-13"), help="site counts, e.g. 8-13")
+    parser.add_argument("--dense-max", type=int, default=12, help="largest N for the dense reference")
+    parser.add_argument("--repeat", type=int, default=1, help="take the best of this many runs")
+    args = parser.parse_args(argv)
+
+    cluster_cumulants(heisenberg(3, ring_edges(3)), args.order)  # compile (or load) the numba kernel
+    print(f"S = 1/2 Heisenberg, order {args.order}; times in seconds")
+    print(f"{'graph':<8}{'N':>4}{'bonds':>7}{'exact':>10}{'dense':>10}{'speed-up':>10}{'max rel diff m2':>17}")
+    for n_sites in args.sizes:
+        for name, edges in (("path", path_edges(n_sites)), ("ring", ring_edges(n_sites))):
+            ham = heisenberg(n_sites, edges)
+            exact_time, exact = best_time(lambda: cluster_cumulants(ham, args.order), args.repeat)
+            row = f"{name:<8}{n_sites:>4}{len(edges):>7}{exact_time:>10.3f}"
+            if n_sites <= args.dense_max:
+                dense_time, dense = best_time(lambda: dense_cumulants_float(ham, args.order), args.repeat)
+                difference = max(abs(float(a) - b) / max(abs(float(a)), 1e-300) for a, b in zip(exact.m2, dense.m2))
+                row += f"{dense_time:>10.3f}{dense_time / exact_time:>10.1f}{difference:>17.1e}"
+            print(row, flush=True)
+
+
+if __name__ == "__main__":
+    main()
