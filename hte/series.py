@@ -49,6 +49,29 @@ class HTSeries:
     stats: dict = field(default_factory=dict)
     provenance: dict = field(default_factory=dict)
 
+    @classmethod
+    def from_table(cls, doc: dict, order: int, *, lattice, model, per: str) -> "HTSeries":
+        """Rebuild a numeric series from a stored per-site table document, truncated to `order`."""
+        from hte.errors import TableMismatchError
+
+        if doc.get("per") != "site":
+            raise TableMismatchError(f"table for {doc.get('lattice')} is stored per {doc.get('per')}, expected per site")
+        scale = Fraction(1)
+        if per == "cell":
+            scale = Fraction(lattice.n_sites)
+        elif per == "magnetic":
+            occupied = sum(len(lattice.sites_of_class(c)) * Fraction(str(p)) for c, p in model.occupation.items())
+            scale = Fraction(lattice.n_sites) / occupied
+        coefficients = {}
+        for name, texts in doc["series"].items():
+            values = [Fraction(t) for t in texts[: order + (0 if name == "E" else 1)]]
+            if name in ("lnZ", "S"):
+                values[0] = Fraction(0)
+            coefficients[name] = [v * scale for v in values]
+        lnz0 = float(doc["series"]["lnZ"][0]) * float(scale)
+        return cls(doc["lattice"], doc["model"], dict(model.spin), dict(doc["couplings"]), dict(model.occupation),
+                   per, order, coefficients, lnz0, False, provenance=dict(doc.get("provenance", {})))
+
     # ------------------------------------------------------------------ output
     def to_json_dict(self) -> dict:
         """The JSON document of CONVENTIONS.md ("series" holds lnZ, chiT, M4, E, C, S)."""
