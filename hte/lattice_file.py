@@ -339,9 +339,9 @@ class _LatticeFileReader:
             for bond, bond_context in new:
                 key = (bond.source, bond.target, bond.offset)
                 if key in seen:
-                    self.fail(bond_context, f"this bond is already given by {seen[key]} (a bond listed in reverse, "
-                                            f"B -> A with the opposite offset, is the same bond); each bond must "
-                                            f"appear once: remove one of them")
+                    self.fail(bond_context, f"this bond is already given by {seen[key]} (a bond written from its "
+                                            f"other end, with the opposite offset, is the same bond); each bond "
+                                            f"must appear once: remove one of them")
                 seen[key] = bond_context
                 bonds.append(bond)
         return tuple(bonds), tuple(dict.fromkeys(b.label for b in bonds))
@@ -376,7 +376,8 @@ class _LatticeFileReader:
             if i == j and not any(offset):
                 self.fail(where, f'bond from site "{source}" to itself in the same cell; a bond to its own '
                                  f"translate needs a non-zero cell offset, e.g. {[1] + [0] * (d - 1)}")
-            result.append((canonical_bond(label, i, j, offset), f"{where}, offset {offset}"))
+            result.append((canonical_bond(label, i, j, offset),
+                           f'{context}, pair {number} ("{source}" -> "{target}", offset {offset})'))
         return result
 
     def read_shell(self, entry: dict, label: str, context: str, geometry: LatticeSpec) -> list[tuple[Bond, str]]:
@@ -413,7 +414,7 @@ class _LatticeFileReader:
                              f"{tolerance:g}; the distances that occur are {', '.join(map(_format_number, nearby))}, "
                              f"...; fix the distance or the tolerance")
         return [(canonical_bond(label, b.source, b.target, b.offset),
-                 f"{where} (bond \"{geometry.sites[b.source].name}\" -> \"{geometry.sites[b.target].name}\", "
+                 f'{where} (bond "{geometry.sites[b.source].name}" -> "{geometry.sites[b.target].name}", '
                  f"offset {list(b.offset)})") for b in found]
 
     def shell_distance(self, geometry: LatticeSpec, between, shell: int, tolerance: float, context: str) -> float:
