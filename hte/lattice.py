@@ -107,7 +107,8 @@ class LatticeSpec:
     Attributes
     ----------
     vectors : tuple of tuples
-        Primitive vectors a_1..a_d, Cartesian.
+        Primitive vectors a_1..a_d, Cartesian.  Each has `space_dimension` >= d components (a ladder, d = 1,
+        lies in the plane); site positions have the same number of components.
     sites : tuple of Site
         Basis sites of one unit cell.
     bonds : tuple of Bond
