@@ -47,6 +47,11 @@ def is_exact(coefficients) -> bool:
     return all(isinstance(c, (int, Fraction)) and not isinstance(c, bool) for c in coefficients)
 
 
+def is_even(coefficients) -> bool:
+    """True when every odd-power coefficient is exactly zero."""
+    return all(c == 0 for c in list(coefficients)[1::2])
+
+
 def as_coefficients(coefficients) -> list:
     """The coefficients as Fractions when all are exact rationals, else as floats."""
     coefficients = list(coefficients)
@@ -94,6 +99,8 @@ class VariableTransform:
     kind = "beta": x = β (no transformation).
     kind = "euler": x = β/(1 + aβ), a > 0, so β ∈ [0, ∞) maps to x ∈ [0, 1/a); β = x/(1 − a x).
     kind = "exp": x = 1 − exp(−aβ), a > 0, so β ∈ [0, ∞) maps to x ∈ [0, 1); β = −ln(1 − x)/a.
+    kind = "square": x = β², for even series f(β) = F(β²) only (F's series is every second coefficient);
+        Padé approximants of F in x avoid the degenerate 2×2 blocks of the Padé table of an even series.
 
     `a` is in units of 1/J (the same unit as T); a Fraction keeps exact series exact.
     """
@@ -102,9 +109,10 @@ class VariableTransform:
     a: float | Fraction = 1
 
     def __post_init__(self):
-        if self.kind not in ("beta", "euler", "exp"):
-            raise ParameterError(f"variable transform kind {self.kind!r} is unknown; use 'beta', 'euler' or 'exp'")
-        if self.kind != "beta" and not self.a > 0:
+        if self.kind not in ("beta", "euler", "exp", "square"):
+            raise ParameterError(f"variable transform kind {self.kind!r} is unknown; use 'beta', 'euler', 'exp' "
+                                 "or 'square'")
+        if self.kind in ("euler", "exp") and not self.a > 0:
             raise ParameterError(f"variable transform {self.kind!r} needs a > 0 (got a = {self.a}); "
                                  "choose a of the order of 1/T at the lowest temperature of interest")
 
@@ -116,6 +124,8 @@ class VariableTransform:
             return beta / (1.0 + a * beta)
         if self.kind == "exp":
             return -np.expm1(-a * beta)
+        if self.kind == "square":
+            return beta * beta
         return beta
 
     def derivatives(self, beta):
@@ -126,10 +136,12 @@ class VariableTransform:
             return 1.0 / (1.0 + a * beta) ** 2, -2.0 * a / (1.0 + a * beta) ** 3
         if self.kind == "exp":
             return a * np.exp(-a * beta), -a * a * np.exp(-a * beta)
+        if self.kind == "square":
+            return 2.0 * beta, np.full_like(beta, 2.0)
         return np.ones_like(beta), np.zeros_like(beta)
 
     def beta_series(self, order: int, exact: bool) -> list:
-        """Coefficients of β as a power series in x, through x^order."""
+        """Coefficients of β as a power series in x, through x^order (not for kind "square")."""
         a = Fraction(self.a) if exact else float(self.a)
         one = Fraction(1) if exact else 1.0
         coefficients = [one * 0] * (order + 1)
@@ -147,6 +159,11 @@ class VariableTransform:
         coefficients = as_coefficients(coefficients)
         if self.kind == "beta":
             return coefficients
+        if self.kind == "square":
+            if not is_even(coefficients):
+                raise ParameterError("variable 'square' (x = beta^2) needs an even series; this one has odd "
+                                     "powers: use 'beta', 'euler' or 'exp'")
+            return coefficients[::2]
         exact = is_exact(coefficients) and isinstance(self.a, (int, Fraction))
         if not exact:
             coefficients = [float(c) for c in coefficients]
@@ -436,10 +453,39 @@ def pade_ensemble(coefficients: Sequence, segment: tuple[float, float], *, depth
         except SingularPadeError as exc:
             members.append(EnsembleMember(L, M, None, [f"singular: {exc}"]))
             continue
+        twin = next((m for m in members if m.approximant is not None and same_function(m.approximant, approximant)),
+                    None)
+        if twin is not None:
+            members.append(EnsembleMember(L, M, approximant, [f"same rational function as {twin.label}"]))
+            continue
         defects = find_defects(approximant, segment, pole_margin=pole_margin,
                                doublet_tolerance=doublet_tolerance)
         members.append(EnsembleMember(L, M, approximant, defects))
     return members
+
+
+def same_function(first: PadeApproximant, second: PadeApproximant, rtol: float = 1e-9) -> bool:
+    """True when two approximants are the same rational function (equal coefficients after trimming zeros).
+
+    Inside a block of the Padé table several [L/M] coincide; counting them twice would fake agreement.
+    """
+    def trimmed(values):
+        values = list(values)
+        while len(values) > 1 and values[-1] == 0:
+            values.pop()
+        return values
+
+    pairs = [(trimmed(first.numerator), trimmed(second.numerator)),
+             (trimmed(first.denominator), trimmed(second.denominator))]
+    for a, b in pairs:
+        if len(a) != len(b):
+            return False
+        if first.exact and second.exact:
+            if a != b:
+                return False
+        elif not np.allclose(np.array(a, dtype=float), np.array(b, dtype=float), rtol=rtol, atol=0.0):
+            return False
+    return True
 
 
 @dataclass(frozen=True)
