@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 import traceback
 
@@ -63,6 +64,12 @@ def main(argv=None) -> int:
             traceback.print_exc()
         print(f"hte {args.command}: error: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into e.g. `head`, which closed early: not an error
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
     except KeyboardInterrupt:
         print(f"hte {args.command}: interrupted; finished work is kept (rerun the same command to resume)",
               file=sys.stderr)
