@@ -299,8 +299,7 @@ def _dlog_curves(coefficients, temperatures, *, tolerance, depth, max_offset, es
         raise ParameterError(f"dlog: every requested temperature lies at or below T_c = {highest_tc:.6g}; "
                              "request temperatures above T_c")
     beta = 1.0 / kept
-    members = {m.label: m for m in critical.members}
-    samples = [beta * dlog_curve(members[a.label].approximant, float(chi_t[0]), beta, a.beta_c, a.gamma)
+    samples = [beta * dlog_curve(a.approximant, float(chi_t[0]), beta, a.beta_c, a.gamma)
                for a in critical.accepted]
     band = band_from_samples(np.array(samples), estimate=estimate, spread=spread)
     return kept, {"chi": band}, critical.to_json_dict(), approximants, fallback, warnings

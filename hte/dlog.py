@@ -27,7 +27,7 @@ from typing import Sequence
 import numpy as np
 
 from hte.errors import ParameterError
-from hte.pade import (EnsembleMember, PadeApproximant, SingularPadeError, as_coefficients, find_defects,
+from hte.pade import (EnsembleMember, PadeApproximant, SingularPadeError, as_coefficients,
                       froissart_doublets, multiply_series, near_diagonal_orders, pade)
 
 #: Poles with |Im p| below this fraction of |p| count as real.
@@ -50,11 +50,13 @@ def log_derivative_series(coefficients: Sequence) -> list:
 
 @dataclass(frozen=True)
 class SingularityEstimate:
-    """What one approximant says: location β_c of the singularity (units of the series variable) and γ."""
+    """What one approximant [L/M] (`label`, as requested) says: location β_c of the singularity (units of the
+    series variable) and γ."""
 
     label: str
     beta_c: float
     gamma: float
+    approximant: PadeApproximant = field(repr=False, compare=False)
 
 
 @dataclass
@@ -87,7 +89,7 @@ class CriticalEstimate:
                 "beta_c": self.beta_c, "beta_c_err": self.beta_c_err, "approximants": len(self.accepted)}
 
 
-def _singularity(approximant: PadeApproximant, pole_margin: float, doublet_tolerance: float
+def _singularity(label: str, approximant: PadeApproximant, pole_margin: float, doublet_tolerance: float
                  ) -> tuple[SingularityEstimate | None, list[str]]:
     poles = approximant.poles()
     real_positive = sorted(p.real for p in poles
@@ -105,7 +107,7 @@ def _singularity(approximant: PadeApproximant, pole_margin: float, doublet_toler
         defects.append(f"second pole at beta = {complex(p):.5g} within {pole_margin:g} beta_c of [0, beta_c]")
     defects.extend(froissart_doublets(approximant, (0.0, beta_c), tolerance=doublet_tolerance,
                                       region=pole_margin))
-    return SingularityEstimate(approximant.label, float(beta_c), float(gamma)), defects
+    return SingularityEstimate(label, float(beta_c), float(gamma), approximant), defects
 
 
 def dlog_pade(coefficients: Sequence, *, depth: int = 3, max_offset: int = 2, pole_margin: float = 0.02,
@@ -145,7 +147,7 @@ def dlog_pade(coefficients: Sequence, *, depth: int = 3, max_offset: int = 2, po
         except SingularPadeError as exc:
             members.append(EnsembleMember(L, M, None, [f"singular: {exc}"]))
             continue
-        estimate, defects = _singularity(approximant, pole_margin, doublet_tolerance)
+        estimate, defects = _singularity(f"[{L}/{M}]", approximant, pole_margin, doublet_tolerance)
         members.append(EnsembleMember(L, M, approximant, defects))
         if estimate is not None and not defects:
             accepted.append(estimate)
@@ -167,9 +169,26 @@ class BiasedExponent:
     values: dict[str, float]
 
 
+def _spoils_value_at(approximant: PadeApproximant, beta_c: float, pole_margin: float,
+                     doublet_tolerance: float) -> bool:
+    """True when a pole lies within pole_margin·β_c of β_c, or a pole that is not half of a Froissart doublet
+    lies within pole_margin·β_c of [0, β_c].  Doublets away from β_c do not change the value there."""
+    poles, zeros = approximant.poles(), approximant.zeros()
+    for p in poles:
+        if abs(p - beta_c) <= pole_margin * beta_c:
+            return True
+        is_doublet = zeros.size and np.min(np.abs(zeros - p)) <= doublet_tolerance * max(1.0, abs(p))
+        if not is_doublet and abs(p - np.clip(p.real, 0.0, beta_c)) <= pole_margin * beta_c:
+            return True
+    return False
+
+
 def biased_exponent(coefficients: Sequence, beta_c: float | Fraction, *, depth: int = 3, max_offset: int = 2,
                     pole_margin: float = 0.02, doublet_tolerance: float = 1e-3) -> BiasedExponent:
     """γ from Padé approximants of (β_c − β)·d ln f/dβ evaluated at the given β_c.
+
+    Only the value at β_c is used, so an approximant is discarded when a pole lies near β_c or a genuine pole
+    (not half of a Froissart doublet) lies on [0, β_c]; see :func:`_spoils_value_at`.
 
     Raises
     ------
@@ -192,13 +211,12 @@ def biased_exponent(coefficients: Sequence, beta_c: float | Fraction, *, depth: 
             approximant = pade(h, L, M)
         except SingularPadeError:
             continue
-        if find_defects(approximant, (0.0, float(bc)), pole_margin=pole_margin,
-                        doublet_tolerance=doublet_tolerance):
+        if _spoils_value_at(approximant, float(bc), pole_margin, doublet_tolerance):
             continue
         values[f"[{L}/{M}]"] = float(approximant(float(bc)))
     if not values:
-        raise ParameterError(f"biased exponent at beta_c = {float(bc):.6g}: every Padé approximant has a pole or "
-                             "doublet on [0, beta_c]; try another beta_c or a longer series")
+        raise ParameterError(f"biased exponent at beta_c = {float(bc):.6g}: every Padé approximant has a pole near "
+                             "beta_c or on [0, beta_c]; try another beta_c or a longer series")
     gammas = np.array(list(values.values()))
     return BiasedExponent(float(bc), float(np.median(gammas)), float(np.ptp(gammas) / 2), values)
 
