@@ -276,9 +276,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
 
     if order < 1:
         raise ParameterError(f"--order {order}: the order must be at least 1")
-    spec = lattice
-    if not model.symbolic:
-        spec = spec.without_labels([l for l, c in model.couplings.items() if c.is_zero])
+    spec = lattice.without_labels([l for l, c in model.couplings.items() if c.is_zero])
     spec = spec.without_classes([c for c, p in model.occupation.items() if p == 0])
 
     symbols = set()
