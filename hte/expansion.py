@@ -141,6 +141,7 @@ class WeightBook:
         self.raw: dict[str, dict] = {}
         self.linked: dict[str, dict] = {}
         self.valued: dict[str, ValuedGraph] = {}
+        self.subgraph_memo: dict[str, dict[str, int]] = {}
         self.computed = 0
         self.from_cache = 0
 
@@ -209,6 +210,8 @@ class WeightBook:
         return w
 
     def _subgraphs(self, vg: ValuedGraph) -> dict[str, int]:
+        if vg.key in self.subgraph_memo:
+            return self.subgraph_memo[vg.key]
         result = {}
         for local_key, count in subgraph_counts(vg.graph).items():
             g = key_to_graph(local_key)
@@ -216,6 +219,7 @@ class WeightBook:
                               [(u, v, vg.edge_values[c]) for u, v, c in g.edges])
             self.valued.setdefault(sub.key, sub)
             result[sub.key] = result.get(sub.key, 0) + count
+        self.subgraph_memo[vg.key] = result
         return result
 
 
@@ -398,9 +402,13 @@ def _is_symbolic(x) -> bool:
 
 
 def _evaluate(part, values) -> Fraction:
+    if isinstance(part, Fraction):
+        return part
+    if isinstance(part, sympy.Symbol):
+        return Fraction(values[part])
     if _is_symbolic(part):
         return Fraction(str(part.subs(values)))
-    return part if isinstance(part, Fraction) else Fraction(str(part))
+    return Fraction(str(part))
 
 
 def _lift(poly_local: dict, present, homogeneous: bool, degree: int, variables) -> dict:
