@@ -36,7 +36,8 @@ from scipy.integrate import simpson
 
 from hte.errors import ParameterError
 from hte.pade import (Band, EnsembleMember, PadeApproximant, SingularPadeError, band_from_samples,
-                      convergence_temperature, find_defects, multiply_series, near_diagonal_orders, pade)
+                      convergence_temperature, find_defects, multiply_series, near_diagonal_orders, pade,
+                      widen_with_lower_order)
 
 #: Smallest 1 + x = (e − e0)/(e_∞ − e0) used when solving for the energy at a temperature.
 _SMALLEST_GAP_FRACTION = 1e-300
@@ -356,10 +357,21 @@ def interpolation_ensemble(data: EntropySeries, e0: float, low_t: LowTemperature
     return members, accepted
 
 
+def _curve_samples(interpolations: list[EntropyInterpolation], temperatures) -> dict[str, list]:
+    samples = {name: [] for name in ("C", "S", "E")}
+    for interpolation in interpolations:
+        for name, values in interpolation.thermodynamics(temperatures).items():
+            samples[name].append(values)
+    return samples
+
+
 def entropy_method(lnZ: Sequence, e0: float, low_t: LowTemperatureClass | str, temperatures, *,
                    tolerance: float = 0.01, depth: int = 3, max_offset: int = 2, estimate: str = "median",
                    spread: str = "minmax") -> EntropyMethodResult:
     """C(T), S(T), E(T) per site from the entropy method, with bands over the accepted Padé approximants.
+
+    Estimate = median of the accepted interpolations; band = their min/max, stretched to contain the median of
+    the ensemble built from the lnZ series shortened by two orders (see :func:`hte.pade.widen_with_lower_order`).
 
     Parameters
     ----------
@@ -385,15 +397,22 @@ def entropy_method(lnZ: Sequence, e0: float, low_t: LowTemperatureClass | str, t
         raise ParameterError(f"entropy method: none of the {len(members)} Padé approximants of the auxiliary "
                              f"function is free of defects for e0 = {e0:.6g} and {low_t}; try other e0 or "
                              "low-temperature class (see entropy_scan) or a longer series")
-    samples = {name: [] for name in ("C", "S", "E")}
-    for interpolation in accepted:
-        for name, values in interpolation.thermodynamics(temperatures).items():
-            samples[name].append(values)
+    samples = _curve_samples(accepted, temperatures)
     curves = {name: band_from_samples(np.array(v), estimate=estimate, spread=spread) for name, v in samples.items()}
-    t_conv = {name: convergence_temperature(temperatures, band, tolerance) for name, band in curves.items()}
     warnings = []
     if len(accepted) == 1:
-        warnings.append(f"entropy method: only {accepted[0].auxiliary.label} survived; the band has no width")
+        warnings.append(f"entropy method: only {accepted[0].auxiliary.label} survived; the band has no width "
+                        "except for the comparison with the shorter series")
+    if data.order - 2 >= 4:
+        shorter = entropy_series(data.lnZ[:-2])
+        _, accepted_shorter = interpolation_ensemble(shorter, e0, low_t, depth=depth, max_offset=max_offset)
+        if accepted_shorter:
+            lower_order = _curve_samples(accepted_shorter, temperatures)
+            curves = {name: widen_with_lower_order(band, lower_order[name]) for name, band in curves.items()}
+        else:
+            warnings.append(f"entropy method: no approximant of the series shortened to order {shorter.order} is "
+                            "free of defects; the band does not include the comparison with lower orders")
+    t_conv = {name: convergence_temperature(temperatures, band, tolerance) for name, band in curves.items()}
     sum_rules = [check_sum_rules(interpolation, data) for interpolation in accepted]
     return EntropyMethodResult(temperatures, float(e0), low_t, curves, t_conv, members, accepted, sum_rules,
                                warnings)

@@ -342,22 +342,29 @@ def _solve_exact(rows, rhs) -> list:
 
 # --- defects ----------------------------------------------------------------------------------------------
 
-def _distance_to_segment(points: np.ndarray, low: float, high: float) -> np.ndarray:
+def _near_segment(points: np.ndarray, low: float, high: float, fraction: float) -> np.ndarray:
+    """Mask of points whose distance to [low, high] is at most `fraction` times their distance to x = 0.
+
+    x = 0 is the expansion point (an end of the physical segment in every use), so the test is scale-free: a
+    pole counts as near when it is close to the segment compared with how far out it lies.
+    """
     nearest = np.clip(points.real, low, high)
-    return np.abs(points - nearest)
+    return np.abs(points - nearest) <= fraction * np.abs(points)
 
 
 def find_defects(approximant: PadeApproximant, segment: tuple[float, float], *, pole_margin: float = 0.02,
                  doublet_tolerance: float = 1e-3, doublet_region: float = 0.5) -> list[str]:
     """Reasons why `approximant` is unusable on the real interval `segment` = (low, high); [] if none.
 
-    A pole is a defect when it lies within ``pole_margin * (high - low)`` of the segment (in the complex
-    plane).  A Froissart doublet is a pole p and a zero z with |p − z| <= doublet_tolerance · max(1, |p|);
-    it is a defect when the pole lies within ``doublet_region * (high - low)`` of the segment.
+    `segment` contains the expansion point x = 0 as one of its ends.  A pole p is a defect when its distance to
+    the segment is at most ``pole_margin * |p|`` (on the segment, or within an angle of about pole_margin
+    radians of it).  A Froissart doublet is a pole p and a zero z with |p − z| <= doublet_tolerance · max(1, |p|);
+    it is a defect when its distance to the segment is at most ``doublet_region * |p|`` ("near the positive
+    real axis" for segment (0, x_max)).
     """
     low, high = float(segment[0]), float(segment[1])
     poles = approximant.poles()
-    near = poles[_distance_to_segment(poles, low, high) <= pole_margin * (high - low)]
+    near = poles[_near_segment(poles, low, high, pole_margin)]
     defects = [f"pole at x = {_format_complex(p)} on or next to the physical segment [{low:.4g}, {high:.4g}]"
                for p in near]
     return defects + froissart_doublets(approximant, segment, tolerance=doublet_tolerance, region=doublet_region)
@@ -365,13 +372,13 @@ def find_defects(approximant: PadeApproximant, segment: tuple[float, float], *, 
 
 def froissart_doublets(approximant: PadeApproximant, segment: tuple[float, float], *, tolerance: float = 1e-3,
                        region: float = 0.5) -> list[str]:
-    """Pole-zero pairs with |p − z| <= tolerance · max(1, |p|) whose pole lies within region·width of `segment`."""
+    """Pole-zero pairs with |p − z| <= tolerance · max(1, |p|) whose pole p lies within region·|p| of `segment`."""
     low, high = float(segment[0]), float(segment[1])
     poles, zeros = approximant.poles(), approximant.zeros()
     if not poles.size or not zeros.size:
         return []
     doublets = []
-    for p in poles[_distance_to_segment(poles, low, high) <= region * (high - low)]:
+    for p in poles[_near_segment(poles, low, high, region)]:
         gap = np.min(np.abs(zeros - p))
         if gap <= tolerance * max(1.0, abs(p)):
             doublets.append(f"Froissart doublet (pole-zero distance {gap:.2g}) at x = {_format_complex(p)}")
@@ -506,25 +513,44 @@ class Band:
 
 
 def band_from_samples(samples: np.ndarray, *, estimate: str = "median", spread: str = "minmax") -> Band:
-    """Estimate and band from an array of curves, shape (members, points).
+    """Estimate and band from an array of curves, shape (members, points); NaN marks a member not valid at a point.
 
-    estimate : "median" or "mean" of the members at each point.
+    estimate : "median" or "mean" of the valid members at each point.
     spread : "minmax" (full range) or "quantile" (10 % to 90 % quantiles, robust against one outlier).
+    Every point needs at least one valid member.
     """
     samples = np.atleast_2d(np.asarray(samples, dtype=float))
     if estimate == "median":
-        centre = np.median(samples, axis=0)
+        centre = np.nanmedian(samples, axis=0)
     elif estimate == "mean":
-        centre = np.mean(samples, axis=0)
+        centre = np.nanmean(samples, axis=0)
     else:
         raise ParameterError(f"estimate {estimate!r} is unknown; use 'median' or 'mean'")
     if spread == "minmax":
-        lower, upper = samples.min(axis=0), samples.max(axis=0)
+        lower, upper = np.nanmin(samples, axis=0), np.nanmax(samples, axis=0)
     elif spread == "quantile":
-        lower, upper = np.quantile(samples, 0.1, axis=0), np.quantile(samples, 0.9, axis=0)
+        lower, upper = np.nanquantile(samples, 0.1, axis=0), np.nanquantile(samples, 0.9, axis=0)
     else:
         raise ParameterError(f"spread {spread!r} is unknown; use 'minmax' or 'quantile'")
     return Band(centre, np.minimum(lower, centre), np.maximum(upper, centre))
+
+
+def widen_with_lower_order(band: Band, lower_order_samples: list) -> Band:
+    """The band stretched to contain the median of the ensemble built from a shorter series (where it is valid).
+
+    Near-diagonal approximants of one order are strongly correlated and can agree on a wrong value where all of
+    them fail; comparing with the previous orders makes the band (and so T_conv) measure stability against the
+    order as well.
+    """
+    if not lower_order_samples:
+        return band
+    stack = np.array(lower_order_samples)
+    usable = np.isfinite(stack).any(axis=0)
+    median = np.full(stack.shape[1], np.nan)
+    median[usable] = np.nanmedian(stack[:, usable], axis=0)
+    lower = np.where(usable, np.fmin(band.lower, median), band.lower)
+    upper = np.where(usable, np.fmax(band.upper, median), band.upper)
+    return Band(band.estimate, lower, upper)
 
 
 def convergence_temperature(temperatures: np.ndarray, band: Band, tolerance: float) -> float | None:
