@@ -203,7 +203,7 @@ def fit_curie_weiss(measurement: Measurement, t_min: float | None = None, t_max:
     if t_min is not None:
         return _result(measurement, selected, fit_chi0, chi0, "user", min_t_over_theta)
     sigma = measurement.sigma
-    noise = sigma if sigma is not None else local_scatter(measurement)[1]
+    noise = sigma if sigma is not None else local_scatter(measurement)
     step = max(1, selected.size // 200)          # at most ~200 trial windows
     accepted = None
     for start in range(selected.size - min_points, -1, -step):

@@ -240,51 +240,82 @@ class Outlier:
                 f"{measurement.unit} lies {self.score:.1f} times the local scatter off the smooth curve")
 
 
-def local_scatter(measurement: Measurement, neighbours: int = 6, span: int = 7):
-    """Leave-one-out residuals from a smooth local fit, and the local robust scatter of the data.
+def local_scatter(measurement: Measurement) -> np.ndarray:
+    """Noise of each point estimated from the data themselves, in the unit of the data.
 
-    Each point is predicted by a quadratic in the independent variable (ln T, or B for an M(H) curve at one
-    temperature) fitted to its `neighbours` nearest points, itself left out.  The residual is divided by
-    sqrt(1 + h), h the variance factor of that prediction, so that all standardised residuals share the
-    noise variance.  The scatter of point i is 1.4826 times the median absolute standardised residual of
-    the points within `span` places of i (a robust standard deviation, insensitive to the outliers).
-
-    Returns
-    -------
-    residual, scatter : numpy.ndarray
-        Standardised residuals and local scatter, both in the unit of the data (divided by sigma when the
-        data carry uncertainties, then dimensionless).
+    The robust local scatter of the residuals from a smooth local fit (see :func:`find_outliers`), turned
+    back into the unit of the values.  Useful where a file gives no uncertainties.
     """
-    n = len(measurement)
-    if n < neighbours + 2:
-        raise DataFileError(f"{measurement.source}: {n} points are too few to judge the scatter; at least "
-                            f"{neighbours + 2} are needed.")
-    x = _independent_variable(measurement)
-    y = measurement.value if measurement.sigma is None else measurement.value / measurement.sigma
-    residual = np.empty(n)
-    for i in range(n):
-        start = min(max(i - neighbours // 2, 0), n - neighbours - 1)
-        nearest = [j for j in range(start, start + neighbours + 1) if j != i]
-        width = np.ptp(x[nearest]) or 1.0
-        design = np.vander((x[nearest] - x[i]) / width, 3, increasing=True)
-        coefficients, *_ = np.linalg.lstsq(design, y[nearest], rcond=None)
-        variance_factor = np.linalg.pinv(design.T @ design)[0, 0]
-        residual[i] = (y[i] - coefficients[0]) / np.sqrt(1.0 + variance_factor)
-    scatter = np.array([1.4826 * np.median(np.abs(residual[max(i - span, 0): i + span + 1])) for i in range(n)])
-    return residual, scatter
+    return _local_fit(measurement).noise
 
 
 def find_outliers(measurement: Measurement, threshold: float = 5.0) -> list[Outlier]:
-    """Flag points lying more than `threshold` local scatters off a smooth local fit (see local_scatter).
+    """Flag points lying more than `threshold` local scatters off a smooth local fit.
 
-    The points are only reported; the caller decides (e.g. ``measurement.subset(mask)``) whether to drop any.
+    Each point is predicted by a cubic fitted to its 6 nearest neighbours, itself left out, in the
+    variables ln|value| against ln T (or against B for an M(H) curve at one temperature); plain values when
+    the data change sign.  Residuals are divided by their expected spread (the point's uncertainty, or 1,
+    combined with the variance of the prediction).  The local scatter of point i is 1.4826 times the median
+    absolute standardised residual of the 25 points around it, a robust standard deviation that the outliers
+    themselves barely move.  Flagged points are left out of their neighbours' fits and the flags are
+    recomputed until they no longer change, so that one spike does not drag its neighbours along.  The
+    points are only reported; the caller decides whether to drop any (e.g. with ``measurement.subset(mask)``).
     """
-    residual, scatter = local_scatter(measurement)
-    in_data_units = residual if measurement.sigma is None else residual * measurement.sigma
+    flagged = np.zeros(len(measurement), dtype=bool)
+    for _ in range(10):
+        fit = _local_fit(measurement, excluded=flagged)
+        updated = np.abs(fit.standardised) > threshold * fit.scale
+        if np.array_equal(updated, flagged):
+            break
+        flagged = updated
     return [Outlier(index=int(i), line=int(measurement.lines[i]), temperature=float(measurement.temperature[i]),
-                    value=float(measurement.value[i]), residual=float(in_data_units[i]),
-                    score=float(abs(residual[i]) / scatter[i]))
-            for i in np.flatnonzero(np.abs(residual) > threshold * scatter)]
+                    value=float(measurement.value[i]), residual=float(measurement.value[i] - fit.prediction[i]),
+                    score=float(abs(fit.standardised[i]) / fit.scale[i]))
+            for i in np.flatnonzero(flagged)]
+
+
+@dataclass(frozen=True)
+class _LocalFit:
+    prediction: np.ndarray      # leave-one-out prediction of each value, unit of the data
+    standardised: np.ndarray    # residual / its expected spread
+    scale: np.ndarray           # robust local scatter of `standardised`
+    noise: np.ndarray           # that scatter in the unit of the data
+
+
+def _local_fit(measurement: Measurement, excluded=None, neighbours: int = 6, span: int = 12, degree: int = 3) -> _LocalFit:
+    n = len(measurement)
+    usable = np.flatnonzero(~excluded) if excluded is not None else np.arange(n)
+    if usable.size < neighbours + 2:
+        raise DataFileError(f"{measurement.source}: {usable.size} points are too few to judge the scatter; at least "
+                            f"{neighbours + 2} are needed.")
+    x = _independent_variable(measurement)
+    values = measurement.value
+    logarithmic = bool(np.all(values > 0) or np.all(values < 0))
+    y = np.log(np.abs(values)) if logarithmic else values
+    if measurement.sigma is None:
+        spread = np.ones(n)
+    else:
+        spread = measurement.sigma / np.abs(values) if logarithmic else measurement.sigma
+    prediction = np.empty(n)
+    standardised = np.empty(n)
+    for i in range(n):
+        others = usable[usable != i]
+        place = np.searchsorted(others, i)
+        start = min(max(place - neighbours // 2, 0), others.size - neighbours)
+        nearest = others[start:start + neighbours]
+        width = np.ptp(x[nearest]) or 1.0
+        design = np.vander((x[nearest] - x[i]) / width, degree + 1, increasing=True) / spread[nearest, None]
+        coefficients, *_ = np.linalg.lstsq(design, y[nearest] / spread[nearest], rcond=None)
+        prediction_variance = np.linalg.pinv(design.T @ design)[0, 0]
+        prediction[i] = coefficients[0]
+        standardised[i] = (y[i] - coefficients[0]) / np.sqrt(spread[i] ** 2 + prediction_variance)
+    scale = np.array([1.4826 * np.median(np.abs(standardised[max(i - span, 0): i + span + 1]))
+                      for i in range(n)])
+    scale = np.maximum(scale, np.finfo(float).tiny)
+    if logarithmic:
+        prediction = np.sign(values) * np.exp(prediction)
+    noise = scale * spread * (np.abs(values) if logarithmic else 1.0)
+    return _LocalFit(prediction=prediction, standardised=standardised, scale=scale, noise=noise)
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -292,20 +323,15 @@ def find_outliers(measurement: Measurement, threshold: float = 5.0) -> list[Outl
 # ---------------------------------------------------------------------------------------------------
 
 def _needed_keys(quantity, field, temperature) -> list[str]:
-    keys = [quantity]
-    if quantity == "M":
-        if field is None:
-            keys.append("B")
-        if temperature is None:
-            keys.append("T")
-        if field is not None and temperature is not None:
-            raise ParameterError("quantity 'M' with both field= and temperature= fixed leaves nothing varying; "
-                                 "read the field or the temperature from a column.")
-    else:
-        if temperature is not None:
-            raise ParameterError(f"temperature= is for M(H) curves; {quantity} is read against a T column.")
-        keys.append("T")
-    return keys
+    if temperature is not None and quantity != "M":
+        raise ParameterError(f"temperature= is for M(H) curves; {quantity} is read against a T column.")
+    if quantity == "M" and field is not None and temperature is not None:
+        raise ParameterError("quantity 'M' with both field= and temperature= fixed leaves nothing varying; "
+                             "read the field or the temperature from a column.")
+    keys = [] if temperature is not None else ["T"]
+    if quantity == "M" and field is None:
+        keys.append("B")
+    return keys + [quantity]
 
 
 def _merge_options(name, given, defaults, keys) -> dict:
@@ -380,7 +406,8 @@ def _column_index(path, header, first_line, key, spec) -> int:
     folded = [i for i, name in enumerate(header) if name.lower() == spec.lower()]
     if len(folded) == 1:
         return folded[0]
-    raise DataFileError(f"{path}: column {spec!r} (for {key!r}) not found; the header has "
+    role = "" if spec == key else f" (for {key!r})"
+    raise DataFileError(f"{path}: column {spec!r}{role} not found; the header has "
                         f"{', '.join(repr(name) for name in header)}. Pass columns={{{key!r}: NAME or position}}.")
 
 
