@@ -328,7 +328,7 @@ def _dlog_curves(coefficients, temperatures, *, tolerance, depth, max_offset, es
     approximants["chi"] = {"accepted": [m.label for m in critical.members if m.accepted],
                            "rejected": {m.label: m.defects for m in critical.members if not m.accepted}}
     highest_tc = max(1.0 / a.beta_c for a in critical.accepted)
-    kept = temperatures[temperatures > highest_tc]
+    kept = temperatures[temperatures > highest_tc * (1.0 + 1e-6)]
     if kept.size < temperatures.size:
         warnings.append(f"dlog: {temperatures.size - kept.size} temperatures at or below the highest accepted "
                         f"T_c = {highest_tc:.6g} dropped; chi diverges there")
