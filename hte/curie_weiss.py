@@ -198,7 +198,9 @@ def fit_curie_weiss(measurement: Measurement, t_min: float | None = None, t_max:
     upper = np.inf if t_max is None else t_max
     selected = np.flatnonzero((temps >= lower) & (temps <= upper))
     if selected.size < min_points:
-        raise DataFileError(f"{measurement.source}: the window {lower:g}-{upper:g} K holds {selected.size} "
+        span = (f"{t_min:g}-{t_max:g} K" if t_min is not None and t_max is not None
+                else f"T >= {t_min:g} K" if t_min is not None else f"T <= {upper:g} K")
+        raise DataFileError(f"{measurement.source}: the window {span} holds {selected.size} "
                             f"points; a Curie-Weiss fit needs at least {min_points}. Widen the window.")
     if t_min is not None:
         return _result(measurement, selected, fit_chi0, chi0, "user", min_t_over_theta)
