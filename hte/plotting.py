@@ -1,8 +1,8 @@
 """Figures of low-temperature curves: χ*, 1/χ*, C, C/T and S against T, with bands and T_conv marked.
 
 One or several :class:`hte.curves.CurveSet` objects are drawn on the same panels (for comparing methods or
-parameter scans), each in its own colour with a legend entry; the band is shaded and T_conv of each quantity
-is a dashed vertical line in the set's colour.  Temperatures are in units of the reference coupling J,
+parameter scans), each in its own colour with a legend entry; the band is shaded, T_conv of each quantity is a
+dashed vertical line in the set's colour, and the estimate is solid above T_conv and dotted below it.  Temperatures are in units of the reference coupling J,
 χ* = χ J/(N g² μ_B²) per site, C and S per site with k_B = 1.
 """
 
@@ -72,8 +72,10 @@ def plot_curves(curvesets, path, *, title: str | None = None) -> None:
             with np.errstate(divide="ignore", invalid="ignore"):
                 estimate, lower, upper = transform(t, band.estimate, band.lower, band.upper)
             ax.fill_between(t, lower, upper, color=colour, alpha=0.25, linewidth=0)
-            ax.plot(t, estimate, color=colour)
             t_conv = curveset.T_conv.get(quantity)
+            converged = t >= (t_conv if t_conv is not None else np.inf)
+            ax.plot(t, np.where(converged, estimate, np.nan), color=colour)
+            ax.plot(t, estimate, color=colour, linestyle=":", linewidth=0.8)     # also below T_conv, faint
             if t_conv is not None:
                 ax.axvline(t_conv, color=colour, linestyle="--", linewidth=1)
             drawn = True
@@ -85,7 +87,7 @@ def plot_curves(curvesets, path, *, title: str | None = None) -> None:
     handles = [Line2D([], [], color=colour, label=_legend_label(curveset, index))
                for index, (curveset, colour) in enumerate(zip(sets, colours))]
     figure.legend(handles=handles, loc="outside lower center", ncols=min(len(handles), 4), fontsize="small",
-                  title="shaded: band; dashed: T_conv (band narrower than the tolerance above it)",
+                  title="shaded: band; dashed line: T_conv (band narrower than the tolerance above it); dotted: below T_conv",
                   title_fontsize="small")
     if title:
         figure.suptitle(title)
