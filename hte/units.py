@@ -66,11 +66,11 @@ _ENERGY_ALIASES = {"k": "K", "kelvin": "K", "mev": "meV", "cm-1": "cm-1", "cm^-1
 
 CONVENTIONS = {
     # name: (factor f with J_ours = f * J_theirs, description)
-    "J": (1.0, "H = J sum_<ij> S_i.S_j, J > 0 antiferromagnetic"),
-    "-J": (-1.0, "H = -J sum_<ij> S_i.S_j, J > 0 ferromagnetic"),
-    "2J": (2.0, "H = 2J sum_<ij> S_i.S_j, J > 0 antiferromagnetic"),
-    "-2J": (-2.0, "H = -2J sum_<ij> S_i.S_j, J > 0 ferromagnetic"),
-    "sigma": (4.0, "H = J sum_<ij> sigma_i.sigma_j with sigma = 2S, J > 0 antiferromagnetic"),
+    "J": (1.0, "H = J sum S_i.S_j, J > 0 antiferromagnetic"),
+    "-J": (-1.0, "H = -J sum S_i.S_j, J > 0 ferromagnetic"),
+    "2J": (2.0, "H = 2J sum S_i.S_j, J > 0 antiferromagnetic"),
+    "-2J": (-2.0, "H = -2J sum S_i.S_j, J > 0 ferromagnetic"),
+    "sigma": (4.0, "H = J sum sigma_i.sigma_j with sigma = 2S, J > 0 antiferromagnetic"),
 }
 
 
@@ -205,9 +205,8 @@ def effective_moment(curie: float, n_magnetic: float = 1) -> float:
 # ---------------------------------------------------------------------------------------------------
 
 _SUPERSCRIPTS = str.maketrans("⁻⁰¹²³⁴⁵⁶⁷⁸⁹−", "-0123456789-")
-_TOKEN = re.compile(r"(f\.u\.?|[A-Za-zμµ_]+|1(?=$|[\s*/)]))\^?\{?([-+]?\d+)?\}?")
-_TOKEN_ALIASES = {"µb": "mub", "μb": "mub", "mu_b": "mub", "μ_b": "mub", "µ_b": "mub", "fu": "f.u.",
-                  "f.u": "f.u."}
+_TOKEN = re.compile(r"([A-Za-zμµ_]+|1(?=$|[\s*/)]))\^?\{?([-+]?\d+)?\}?")
+_TOKEN_ALIASES = {"µb": "mub", "μb": "mub", "mu_b": "mub", "μ_b": "mub", "µ_b": "mub", "fu": "f.u."}
 
 
 def parse_unit(text: str) -> tuple[tuple[str, int], ...]:
@@ -224,7 +223,7 @@ def parse_unit(text: str) -> tuple[tuple[str, int], ...]:
     """
     source = str(text)
     text = source.translate(_SUPERSCRIPTS).replace("·", " ").replace("*", " ").strip()
-    text = re.sub(r"\.(?!u\.?)(?<!f\.)", " ", text)   # a dot multiplies, except inside f.u.
+    text = re.sub(r"f\.u\.?", "fu", text).replace(".", " ")   # a dot multiplies, except inside f.u.
     if not text:
         raise ParameterError("empty unit string; give a unit such as 'emu/mol'.")
     powers: dict[str, int] = {}
@@ -354,7 +353,8 @@ def to_canonical(value, quantity: str, unit: str, molar_mass: float | None = Non
 
 def from_canonical(value, quantity: str, unit: str, molar_mass: float | None = None):
     """Inverse of :func:`to_canonical`: convert `value` from the canonical unit of `quantity` to `unit`."""
-    return value / to_canonical(1.0, quantity, unit, molar_mass)
+    factor = to_canonical(1.0, quantity, unit, molar_mass)
+    return np.asarray(value, dtype=float) / factor if np.ndim(value) else float(value) / factor
 
 
 def convert(value, quantity: str, from_unit: str, to_unit: str, molar_mass: float | None = None):

@@ -143,3 +143,9 @@ def test_reduced_susceptibility_factor_turns_curie_law_into_emu_per_mol():
     factor = units.reduced_susceptibility_factor(coupling, g, n_magnetic=2)
     assert factor * reduced == pytest.approx(units.curie_constant(g, spin, n_magnetic=2) / temperature)
     assert factor == pytest.approx(2 * 3 * 0.12505 * g**2 / coupling, rel=1e-4)
+
+
+def test_convention_description_matches_the_fit_report_wording():
+    # CONVENTIONS.md, JSON report of `hte fit`: "H = J sum S_i.S_j, J > 0 antiferromagnetic".
+    assert units.describe_convention("J") == "H = J sum S_i.S_j, J > 0 antiferromagnetic"
+    assert units.describe_convention("-2J") == "H = -2J sum S_i.S_j, J > 0 ferromagnetic"
