@@ -91,7 +91,8 @@ class Measurement:
         return text
 
 
-def read_measurement(path, quantity: str = "chi", columns: dict | None = None, units: dict | None = None, *, molar_mass: float | None = None, n_magnetic: float = 1,
+def read_measurement(path, quantity: str = "chi", columns: dict | None = None, units: dict | None = None, *,
+                     molar_mass: float | None = None, n_magnetic: float = 1,
                      field=None, temperature=None, uncertainty_column=None, diamagnetic=None,
                      min_points: int = 3) -> Measurement:
     """Read a measured curve from a text file.
@@ -282,7 +283,8 @@ class _LocalFit:
     noise: np.ndarray           # that scatter in the unit of the data
 
 
-def _local_fit(measurement: Measurement, excluded=None, neighbours: int = 6, span: int = 12, degree: int = 3) -> _LocalFit:
+def _local_fit(measurement: Measurement, excluded=None, neighbours: int = 6, span: int = 12,
+               degree: int = 3) -> _LocalFit:
     n = len(measurement)
     usable = np.flatnonzero(~excluded) if excluded is not None else np.arange(n)
     if usable.size < neighbours + 2:
