@@ -310,7 +310,7 @@ def _pade_curves(coefficients, temperatures, *, tolerance, depth, max_offset, tr
     return curves, t_conv, approximants, fallback, warnings
 
 
-def _dlog_curves(coefficients, temperatures, *, tolerance, depth, max_offset, estimate, spread):
+def _dlog_curves(coefficients, temperatures, *, depth, max_offset, estimate, spread):
     if "chiT" not in coefficients:
         raise ParameterError("method dlog analyses the susceptibility; the series has no 'chiT' key")
     chi_t = coefficients["chiT"]
@@ -339,6 +339,8 @@ def _dlog_curves(coefficients, temperatures, *, tolerance, depth, max_offset, es
     samples = [beta * dlog_curve(a.approximant, float(chi_t[0]), beta, a.beta_c, a.gamma)
                for a in critical.accepted]
     band = band_from_samples(np.array(samples), estimate=estimate, spread=spread)
+    if len(samples) == 1:
+        warnings.append(f"dlog: only {critical.accepted[0].label} is free of defects; chi has no spread to show")
     return kept, {"chi": band}, critical.to_json_dict(), approximants, fallback, warnings
 
 
@@ -392,8 +394,7 @@ def curves_from_series(series: dict, method: str, *, temperatures, e0: float | N
             estimate=estimate, spread=spread)
     elif method == "dlog":
         grid, curves, critical, approximants, fallback, warnings = _dlog_curves(
-            coefficients, grid, tolerance=tolerance, depth=depth, max_offset=max_offset, estimate=estimate,
-            spread=spread)
+            coefficients, grid, depth=depth, max_offset=max_offset, estimate=estimate, spread=spread)
         t_conv = {name: convergence_temperature(grid, band, tolerance) for name, band in curves.items()}
     else:
         if "lnZ" not in coefficients:

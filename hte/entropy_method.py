@@ -41,7 +41,7 @@ from hte.pade import (Band, EnsembleMember, PadeApproximant, SingularPadeError, 
 
 #: Smallest 1 + x = (e − e0)/(e_∞ − e0) used when solving for the energy at a temperature.
 _SMALLEST_GAP_FRACTION = 1e-300
-_BISECTION_STEPS = 110
+_BISECTION_STEPS = 64   # brackets ln(1 + x) in [ln 1e-300, 0] to 690 / 2**64 = 4e-17
 
 
 @dataclass(frozen=True)
