@@ -422,7 +422,9 @@ def entropy_method(lnZ: Sequence, e0: float, low_t: LowTemperatureClass | str, t
 class ScanPoint:
     """One (e0, low-temperature class) of a scan: how many approximants survive and how far they disagree.
 
-    spread_C = largest relative half-width of the C band over the temperature grid (None with < 2 survivors).
+    spread_C = largest relative half-width of the C band (min/max of the accepted approximants) over the
+    temperature grid, and T_conv_C the lowest temperature above which it stays below the tolerance; both None
+    with fewer than 2 survivors.
     """
 
     e0: float
@@ -430,13 +432,18 @@ class ScanPoint:
     accepted: int
     total: int
     spread_C: float | None
+    T_conv_C: float | None
+
+    def to_json_dict(self) -> dict:
+        return {"e0": self.e0, "low_t": str(self.low_t), "accepted": self.accepted, "total": self.total,
+                "spread_C": self.spread_C, "T_conv_C": self.T_conv_C}
 
 
 def entropy_scan(lnZ: Sequence, e0_values: Sequence[float], low_t_values: Sequence, temperatures, *,
-                 depth: int = 3, max_offset: int = 2) -> list[ScanPoint]:
+                 tolerance: float = 0.01, depth: int = 3, max_offset: int = 2) -> list[ScanPoint]:
     """Scan e0 and the low-temperature class; consistent choices keep many approximants with a small spread.
 
-    Choices that are impossible (e0 above the series' energy bound) raise ParameterError, as in
+    Choices that are impossible (e0 above the series' energy bound, α or Δ <= 0) raise ParameterError, as in
     :func:`entropy_method`.
     """
     temperatures = np.asarray(temperatures, dtype=float)
@@ -445,10 +452,10 @@ def entropy_scan(lnZ: Sequence, e0_values: Sequence[float], low_t_values: Sequen
         for low_t in low_t_values:
             data, low_t = _validated(lnZ, e0, low_t)
             members, accepted = interpolation_ensemble(data, e0, low_t, depth=depth, max_offset=max_offset)
-            spread = None
+            spread = t_conv = None
             if len(accepted) >= 2:
-                heat = np.array([i.thermodynamics(temperatures)["C"] for i in accepted])
-                band = band_from_samples(heat)
+                band = band_from_samples(np.array(_curve_samples(accepted, temperatures)["C"]))
                 spread = float(np.max(band.relative_half_width()))
-            points.append(ScanPoint(float(e0), low_t, len(accepted), len(members), spread))
+                t_conv = convergence_temperature(temperatures, band, tolerance)
+            points.append(ScanPoint(float(e0), low_t, len(accepted), len(members), spread, t_conv))
     return points
