@@ -261,14 +261,21 @@ def find_outliers(measurement: Measurement, threshold: float = 5.0) -> list[Outl
     themselves barely move.  Flagged points are left out of their neighbours' fits and the flags are
     recomputed until they no longer change, so that one spike does not drag its neighbours along.  The
     points are only reported; the caller decides whether to drop any (e.g. with ``measurement.subset(mask)``).
+
+    The method assumes points dense enough that the curve is smooth over 7 consecutive points; on sparse
+    data (a few points per decade of T) the local fits miss the curvature and points are flagged because the
+    curve bends, not because they are wrong.
     """
     flagged = np.zeros(len(measurement), dtype=bool)
+    fit = _local_fit(measurement)
     for _ in range(10):
-        fit = _local_fit(measurement, excluded=flagged)
         updated = np.abs(fit.standardised) > threshold * fit.scale
         if np.array_equal(updated, flagged):
             break
         flagged = updated
+        if np.count_nonzero(~flagged) < _NEIGHBOURS + 2:
+            break
+        fit = _local_fit(measurement, excluded=flagged)
     return [Outlier(index=int(i), line=int(measurement.lines[i]), temperature=float(measurement.temperature[i]),
                     value=float(measurement.value[i]), residual=float(measurement.value[i] - fit.prediction[i]),
                     score=float(abs(fit.standardised[i]) / fit.scale[i]))
@@ -283,7 +290,10 @@ class _LocalFit:
     noise: np.ndarray           # that scatter in the unit of the data
 
 
-def _local_fit(measurement: Measurement, excluded=None, neighbours: int = 6, span: int = 12,
+_NEIGHBOURS = 6      # points in each local fit
+
+
+def _local_fit(measurement: Measurement, excluded=None, neighbours: int = _NEIGHBOURS, span: int = 12,
                degree: int = 3) -> _LocalFit:
     n = len(measurement)
     usable = np.flatnonzero(~excluded) if excluded is not None else np.arange(n)

@@ -251,3 +251,9 @@ def test_spin_only_magnetisation_matches_brillouin_at_saturation():
                          temperature=2.0)
     assert m.value[-1] == pytest.approx(math.tanh(0.67171381472 * 7.0 / 2.0), rel=1e-6)
     assert m.value[-1] < 1.0
+
+
+def test_outlier_search_needs_enough_points():
+    m = Measurement("chi", np.arange(1.0, 6.0), np.ones(5), source="short.dat")
+    with pytest.raises(DataFileError, match="short.dat: 5 points are too few to judge the scatter; at least 8"):
+        find_outliers(m)
