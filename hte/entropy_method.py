@@ -1,4 +1,4 @@
-r"""The entropy method: low-temperature thermodynamics from the high-temperature series of ln Z and the ground-state energy.
+r"""The entropy method: low-temperature thermodynamics from the high-temperature series of ln Z and e0.
 
 Per site, the microcanonical entropy s(e) is interpolated between the ground-state energy e0 (where s = 0) and
 the infinite-temperature energy e_∞ = −d(ln Z/N)/dβ at β = 0 (where s = ln Z(0)/N, e.g. ln 2 for S = 1/2, and
@@ -46,7 +46,7 @@ _BISECTION_STEPS = 64   # brackets ln(1 + x) in [ln 1e-300, 0] to 690 / 2**64 = 
 
 @dataclass(frozen=True)
 class LowTemperatureClass:
-    """Assumed low-temperature behaviour: kind "gapped" (value = gap Δ, units of J) or "power" (value = α, C ∝ T^α)."""
+    """Assumed low-temperature behaviour: "gapped" (value = gap Δ, units of J) or "power" (value = α, C ∝ T^α)."""
 
     kind: str
     value: float
@@ -123,13 +123,14 @@ class EntropySeries:
         return len(self.entropy) - 1
 
     def energy_bound(self) -> float:
-        """An energy the truncated series itself certifies to lie above e0: E(β*) where the last term of the
-        energy series is still below 1e-3 of |E − e_∞| for all β <= β*."""
+        """An energy the truncated series itself certifies to lie above e0: E(β*) where the last two terms of the
+        energy series are still below 1e-3 of |E − e_∞| for all β <= β*."""
         n = len(self.lnZ) - 1
         beta = np.linspace(1e-3, 10.0, 2000)
         terms = np.array([-(k + 1) * float(self.lnZ[k + 1]) * beta ** k for k in range(n)])
         shift = terms[1:].sum(axis=0)
-        trusted = np.abs(terms[-1]) <= 1e-3 * np.abs(shift)
+        last_terms = np.maximum(np.abs(terms[-1]), np.abs(terms[-2]))    # an even series may end on a zero
+        trusted = last_terms <= 1e-3 * np.abs(shift)
         last = np.argmin(trusted) if not trusted.all() else len(beta)
         if last == 0:
             return self.e_inf
@@ -271,13 +272,14 @@ class SumRuleCheck:
 def check_sum_rules(interpolation: EntropyInterpolation, data: EntropySeries, points: int = 4001) -> SumRuleCheck:
     """Integrate C(T) and C(T)/T of one interpolation numerically (Simpson in ln T).
 
-    The range runs from T_low, where (E − e0)/(e_∞ − e0) = 1e-30, to T_high, where the last term of the
-    high-temperature series is below 1e-13; the part above T_high is taken from the truncated high-temperature
+    The range runs from T_low, where (E − e0)/(e_∞ − e0) = 1e-30, to T_high, where the last two terms of the
+    high-temperature energy series are below 1e-13; the part above T_high is taken from the truncated high-temperature
     series of E and S, the part below T_low from the interpolation itself (s(E(T_low)) and E(T_low) − e0).
     """
     beta_grid = np.logspace(0, -6, 300)
     n = len(data.lnZ) - 1
-    last = abs(data.lnZ[-1]) * n * beta_grid ** (n - 1)
+    last = np.maximum(abs(data.lnZ[-1]) * n * beta_grid ** (n - 1),
+                      abs(data.lnZ[-2]) * (n - 1) * beta_grid ** (n - 2))
     beta_high = float(beta_grid[np.argmax(last < 1e-13)])
     _, slope_low, _ = interpolation.entropy(1e-30)
     t_low, t_high = 1.0 / float(slope_low), 1.0 / beta_high

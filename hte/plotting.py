@@ -87,7 +87,8 @@ def plot_curves(curvesets, path, *, title: str | None = None) -> None:
     handles = [Line2D([], [], color=colour, label=_legend_label(curveset, index))
                for index, (curveset, colour) in enumerate(zip(sets, colours))]
     figure.legend(handles=handles, loc="outside lower center", ncols=min(len(handles), 4), fontsize="small",
-                  title="shaded: band; dashed line: T_conv (band narrower than the tolerance above it); dotted: below T_conv",
+                  title="shaded: band; dashed line: T_conv (band narrower than the tolerance above it); "
+                        "dotted: below T_conv",
                   title_fontsize="small")
     if title:
         figure.suptitle(title)

@@ -138,7 +138,8 @@ def test_bands_widen_towards_low_temperature_and_t_conv_falls_with_order():
 def test_energy_route_for_heat_capacity_reaches_lower_t_conv_than_direct_pade_of_c():
     # The documented choice in hte/curves.py: both routes are within tolerance above their T_conv, and the
     # derivative of the energy approximants converges further down on all three exactly solved models.
-    models = [(ising_chain(), lambda t: ising_chain_exact(t)["C"]), (heisenberg_dimer(), lambda t: dimer_exact(t)["C"]),
+    models = [(ising_chain(), lambda t: ising_chain_exact(t)["C"]),
+              (heisenberg_dimer(), lambda t: dimer_exact(t)["C"]),
               (xx_chain(), lambda t: np.array([xx_chain_heat_capacity(x) for x in t]))]
     grid = np.geomspace(0.05, 5.0, 40)
     for series, exact_heat in models:
