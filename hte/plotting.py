@@ -2,8 +2,9 @@
 
 One or several :class:`hte.curves.CurveSet` objects are drawn on the same panels (for comparing methods or
 parameter scans), each in its own colour with a legend entry; the band is shaded, T_conv of each quantity is a
-dashed vertical line in the set's colour, and the estimate is solid above T_conv and dotted below it.  Temperatures are in units of the reference coupling J,
-χ* = χ J/(N g² μ_B²) per site, C and S per site with k_B = 1.
+dashed vertical line in the set's colour, and the estimate is solid above T_conv and dotted below it.
+Temperatures are in units of the reference coupling J, χ* = χ J/(N g² μ_B²) per site, C and S per site with
+k_B = 1.
 """
 
 from __future__ import annotations
