@@ -428,6 +428,10 @@ def pade_ensemble(coefficients: Sequence, segment: tuple[float, float], *, depth
                   quantity: str = "series") -> list[EnsembleMember]:
     """All near-diagonal Padé approximants of a series, each screened for defects on `segment`.
 
+    Defects are those of :func:`find_defects` (poles on or next to the segment, Froissart doublets near it), a
+    singular system, or being the same rational function as an earlier member (inside a block of the Padé
+    table), which would otherwise fake agreement.
+
     Parameters
     ----------
     coefficients : sequence
