@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import numbers
 from dataclasses import dataclass
+from functools import cached_property
 from fractions import Fraction
 from math import comb, factorial, prod
 
@@ -36,14 +37,7 @@ import numpy as np
 
 from hte.errors import ParameterError, ResourceLimitError
 from hte.modular import crt_signed, power_traces_mod, prime_bits_for, primes_exceeding, symmetric_residues
-from hte.spin_matrices import (
-    coupling_scale,
-    float_sector_matrix,
-    gauge_weights_mod,
-    integer_sector_matrix,
-    spectral_bound,
-    spin_sectors,
-)
+from hte.spin_matrices import float_sector_matrix, gauge_weights_mod, integer_couplings, integer_sector_matrix, spin_sectors
 
 _BLOCK_ENTRIES = 2**20  # unit vectors propagated together: dim * block <= this (3 float64 buffers, 24 MiB)
 _BLOCK_MAX = 64
@@ -128,7 +122,7 @@ class ClusterHamiltonian:
     def n_sites(self) -> int:
         return len(self.spins)
 
-    @property
+    @cached_property
     def twice_spins(self) -> tuple[int, ...]:
         """2 S_i per vertex, as ints."""
         return tuple(int(2 * s) for s in self.spins)
@@ -194,12 +188,13 @@ def _integer_power_traces(ham: ClusterHamiltonian, order: int) -> tuple[int, dic
     """scale and {2m: [Tr_m(A^k) for k = 0..order]} for m >= 0, A = scale * H0 in the integer gauge.
 
     The primes' product exceeds 2 d R^order >= 2 |Tr_m A^k| (A is similar to a real symmetric matrix with
-    spectral radius <= R, :func:`hte.spin_matrices.spectral_bound`), so Chinese remaindering is exact.
+    spectral radius <= R, :attr:`hte.spin_matrices.IntegerCouplings.spectral_bound`), so Chinese remaindering
+    is exact.
     """
-    scale = coupling_scale(ham)
+    couplings = integer_couplings(ham)
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
-    matrices = [integer_sector_matrix(sector, ham, scale) for sector in sectors]
-    bound = max(sector.dim for sector in sectors) * max(spectral_bound(ham, scale), 1) ** order
+    matrices = [integer_sector_matrix(sector, couplings) for sector in sectors]
+    bound = max(sector.dim for sector in sectors) * max(couplings.spectral_bound, 1) ** order
     bits = prime_bits_for(max(m.max_row_length for m in matrices), max(m.max_abs_entry for m in matrices))
     primes = primes_exceeding(bits, bound)
     traces = {}
@@ -219,7 +214,7 @@ def _integer_power_traces(ham: ClusterHamiltonian, order: int) -> tuple[int, dic
         traces[sector.twice_magnetization] = [
             crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)
         ]
-    return scale, traces
+    return couplings.scale, traces
 
 
 def _cumulants_from_integer_moments(sums: dict[int, list[int]], scale: int, order: int) -> ClusterCumulants:

@@ -95,23 +95,55 @@ def _raising_factor(twice_spin: int, k: np.ndarray) -> np.ndarray:
     return (twice_spin - k) * (k + 1)
 
 
-def coupling_scale(ham) -> int:
-    """4 L, L = least common multiple of the denominators of all Jxy, Jz and D of ``ham``."""
-    values = [c for _, _, jxy, jz in ham.bonds for c in (jxy, jz)] + list(ham.anisotropy)
-    return 4 * lcm(1, *(Fraction(v).denominator for v in values))
+@dataclass(frozen=True)
+class IntegerCouplings:
+    """The couplings of a cluster scaled to integers: the data of A = scale * C^{-1} H0 C.
 
-
-def spectral_bound(ham, scale: int) -> int:
-    r"""An integer R >= scale * ||H0|| (operator norm), proven by the triangle inequality.
-
-    ||S^x_u S^x_v + S^y_u S^y_v|| <= 2 S_u S_v, ||S^z_u S^z_v|| = S_u S_v, ||(S^z_i)^2|| = S_i^2, so
-    R = (scale/4) [sum_b (2|Jxy| + |Jz|)(2S_u)(2S_v) + sum_i |D_i| (2S_i)^2].
+    Attributes
+    ----------
+    twice_spins : tuple of int
+        2 S_i per site.
+    scale : int
+        4 L, L the least common multiple of the denominators of all Jxy, Jz and D.
+    bonds : tuple of (u, v, flip, zz)
+        flip = (scale/2) Jxy, the element of S^+_u S^-_v per unit f(m_u); zz = (scale/4) Jz, per unit (2m_u)(2m_v).
+    anisotropy : tuple of int
+        (scale/4) D_i per unit (2m_i)^2 (empty when there is none).
+    spectral_bound : int
+        R >= scale * ||H0|| (operator norm), proven by the triangle inequality:
+        ||S^x_u S^x_v + S^y_u S^y_v|| <= 2 S_u S_v, ||S^z_u S^z_v|| = S_u S_v, ||(S^z_i)^2|| = S_i^2, so
+        R = sum_b (2|flip| + |zz|)(2S_u)(2S_v) + sum_i |(scale/4) D_i| (2S_i)^2.
     """
+
+    twice_spins: tuple[int, ...]
+    scale: int
+    bonds: tuple[tuple[int, int, int, int], ...]
+    anisotropy: tuple[int, ...]
+    spectral_bound: int
+
+    @property
+    def entry_dtype(self):
+        """int64 when every matrix entry and partial sum provably stays below 2**62, else object (Python ints)."""
+        largest_factor = max(((t + 1) ** 2 // 4 for t in self.twice_spins), default=1)  # max_m f(m) <= (S + 1/2)^2
+        return np.int64 if self.spectral_bound * largest_factor < _INT64_SAFE else object
+
+
+def integer_couplings(ham) -> IntegerCouplings:
+    """Scale the couplings of ``ham`` (spins, bonds (u, v, Jxy, Jz), anisotropy) to integers."""
+    values = [c for _, _, jxy, jz in ham.bonds for c in (jxy, jz)] + list(ham.anisotropy)
+    scale = 4 * lcm(1, *(Fraction(v).denominator for v in values))
     twice = ham.twice_spins
-    total = sum((2 * abs(jxy) + abs(jz)) * twice[u] * twice[v] for u, v, jxy, jz in ham.bonds)
-    total += sum(abs(d) * t * t for d, t in zip(ham.anisotropy, twice))
-    bound = Fraction(scale, 4) * total
-    return bound.numerator // bound.denominator + (bound.denominator != 1)
+    bonds = tuple((u, v, _as_integer(Fraction(scale, 2) * jxy), _as_integer(Fraction(scale, 4) * jz)) for u, v, jxy, jz in ham.bonds)
+    anisotropy = tuple(_as_integer(Fraction(scale, 4) * d) for d in ham.anisotropy)
+    bound = sum((2 * abs(flip) + abs(zz)) * twice[u] * twice[v] for u, v, flip, zz in bonds)
+    bound += sum(abs(d) * t * t for d, t in zip(anisotropy, twice))
+    return IntegerCouplings(twice, scale, bonds, anisotropy, bound)
+
+
+def _as_integer(value: Fraction) -> int:
+    if value.denominator != 1:
+        raise ValueError(f"{value} is not an integer: the scale must be a multiple of 4 x the common denominator")
+    return value.numerator
 
 
 @dataclass(frozen=True)
@@ -131,37 +163,34 @@ class IntegerSectorMatrix:
 
     @property
     def max_abs_entry(self) -> int:
-        return int(max((abs(v) for v in self.values), default=0)) if self.values.dtype == object else int(
-            np.abs(self.values).max(initial=0)
-        )
+        if self.values.dtype == object:
+            return int(max((abs(v) for v in self.values), default=0))
+        return int(np.abs(self.values).max(initial=0))
 
 
-def integer_sector_matrix(sector: SpinSector, ham, scale: int) -> IntegerSectorMatrix:
-    """The integer-gauge matrix A = scale * C^{-1} H0 C of ``ham`` in ``sector`` (see module docstring).
+def integer_sector_matrix(sector: SpinSector, couplings: IntegerCouplings) -> IntegerSectorMatrix:
+    """The integer-gauge matrix A = scale * C^{-1} H0 C in ``sector`` (see module docstring).
 
-    Off-diagonal: <a|A|b> = (scale/2) Jxy f(m_u) for S^+_u S^-_v; diagonal:
-    (scale/4) [sum_b Jz (2m_u)(2m_v) + sum_i D_i (2m_i)^2].  Requires scale to be a multiple of 4 L.
+    Off-diagonal: <a|A|b> = flip f(m_u) for S^+_u S^-_v (and u <-> v); diagonal:
+    sum_b zz (2m_u)(2m_v) + sum_i (scale/4) D_i (2m_i)^2.
     """
-    twice = ham.twice_spins
-    max_factor = max((_raising_factor(t, np.arange(t + 1)).max() for t in twice), default=1)
-    fits = spectral_bound(ham, scale) * int(max_factor) < _INT64_SAFE
-    dtype = np.int64 if fits else object
+    twice = couplings.twice_spins
+    dtype = couplings.entry_dtype
     twice_m = 2 * sector.local_states - np.array(twice, dtype=np.int64)
     diagonal = np.zeros(sector.dim, dtype=dtype)
     rows, columns, values = [], [], []
-    for u, v, jxy, jz in ham.bonds:
-        if jz:
-            diagonal += (twice_m[:, u] * twice_m[:, v]).astype(dtype) * _as_integer(Fraction(scale, 4) * jz)
-        if jxy:
+    for u, v, flip, zz in couplings.bonds:
+        if zz:
+            diagonal += (twice_m[:, u] * twice_m[:, v]).astype(dtype) * zz
+        if flip:
             for raised, lowered in ((u, v), (v, u)):
                 source, target, k_raised, _ = _flips(sector, twice, raised, lowered)
                 rows.append(target)
                 columns.append(source)
-                factor = _raising_factor(twice[raised], k_raised).astype(dtype)
-                values.append(factor * _as_integer(Fraction(scale, 2) * jxy))
-    for i, d in enumerate(ham.anisotropy):
+                values.append(_raising_factor(twice[raised], k_raised).astype(dtype) * flip)
+    for i, d in enumerate(couplings.anisotropy):
         if d:
-            diagonal += (twice_m[:, i] ** 2).astype(dtype) * _as_integer(Fraction(scale, 4) * d)
+            diagonal += (twice_m[:, i] ** 2).astype(dtype) * d
     on_diagonal = np.nonzero(diagonal != 0)[0]
     rows.append(on_diagonal)
     columns.append(on_diagonal)
@@ -171,12 +200,6 @@ def integer_sector_matrix(sector: SpinSector, ham, scale: int) -> IntegerSectorM
     indptr = np.zeros(sector.dim + 1, dtype=np.int64)
     np.cumsum(np.bincount(rows, minlength=sector.dim), out=indptr[1:])
     return IntegerSectorMatrix(indptr, columns[order].astype(np.int64), values[order])
-
-
-def _as_integer(value: Fraction) -> int:
-    if value.denominator != 1:
-        raise ValueError(f"{value} is not an integer: the scale must be a multiple of 4 x the common denominator")
-    return value.numerator
 
 
 def gauge_weights_mod(sector: SpinSector, twice_spins: tuple[int, ...], prime: int) -> tuple[np.ndarray, np.ndarray]:

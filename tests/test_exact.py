@@ -23,7 +23,7 @@ from sympy.polys.rings import ring
 from hte.errors import ParameterError, ResourceLimitError
 from hte.exact import ClusterHamiltonian, cluster_cumulants, cluster_spectrum, dense_cumulants_float
 from hte.modular import crt_signed, is_prime, power_traces_mod, primes_below, symmetric_residues
-from hte.spin_matrices import coupling_scale, gauge_weights_mod, integer_sector_matrix, spin_sectors
+from hte.spin_matrices import gauge_weights_mod, integer_couplings, integer_sector_matrix, spin_sectors
 
 HALF = Fraction(1, 2)
 SERIES_RING, X = ring("x", QQ)
@@ -331,7 +331,7 @@ def test_sector_traces_match_python_integer_matrix_powers():
     )
     order = 9
     sector = spin_sectors(ham.twice_spins, nonnegative_only=True)[0]
-    matrix = integer_sector_matrix(sector, ham, coupling_scale(ham))
+    matrix = integer_sector_matrix(sector, integer_couplings(ham))
     dense = np.zeros((sector.dim, sector.dim), dtype=object)
     for row in range(sector.dim):
         for e in range(matrix.indptr[row], matrix.indptr[row + 1]):
