@@ -112,7 +112,8 @@ class IntegerCouplings:
     spectral_bound : int
         R >= scale * ||H0|| (operator norm), proven by the triangle inequality:
         ||S^x_u S^x_v + S^y_u S^y_v|| <= 2 S_u S_v, ||S^z_u S^z_v|| = S_u S_v, ||(S^z_i)^2|| = S_i^2, so
-        R = sum_b (2|flip| + |zz|)(2S_u)(2S_v) + sum_i |(scale/4) D_i| (2S_i)^2.
+        scale ||H0|| <= sum_b (scale/4)(2|Jxy| + |Jz|)(2S_u)(2S_v) + sum_i (scale/4)|D_i| (2S_i)^2
+        = sum_b (|flip| + |zz|)(2S_u)(2S_v) + sum_i |anisotropy_i| (2S_i)^2 = R.
     """
 
     twice_spins: tuple[int, ...]
@@ -135,7 +136,7 @@ def integer_couplings(ham) -> IntegerCouplings:
     twice = ham.twice_spins
     bonds = tuple((u, v, _as_integer(Fraction(scale, 2) * jxy), _as_integer(Fraction(scale, 4) * jz)) for u, v, jxy, jz in ham.bonds)
     anisotropy = tuple(_as_integer(Fraction(scale, 4) * d) for d in ham.anisotropy)
-    bound = sum((2 * abs(flip) + abs(zz)) * twice[u] * twice[v] for u, v, flip, zz in bonds)
+    bound = sum((abs(flip) + abs(zz)) * twice[u] * twice[v] for u, v, flip, zz in bonds)
     bound += sum(abs(d) * t * t for d, t in zip(anisotropy, twice))
     return IntegerCouplings(twice, scale, bonds, anisotropy, bound)
 

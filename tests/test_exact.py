@@ -204,11 +204,11 @@ def test_spectrum_of_triangle_matches_total_spin_levels():
 
 # ------------------------------------------------------------------------------------ random clusters
 def random_cluster(rng: random.Random) -> ClusterHamiltonian:
-    """3-6 sites, mixed spins (at most 600 states), random connected graph, rational Jxy != Jz, D for S >= 1."""
+    """3-6 sites, mixed spins (at most 250 states), random connected graph, rational Jxy != Jz, D for S >= 1."""
     n_sites = rng.randint(3, 6)
     while True:
         spins = [rng.choice([HALF, HALF, Fraction(1), Fraction(3, 2), Fraction(2)]) for _ in range(n_sites)]
-        if prod(2 * s + 1 for s in spins) <= 600:
+        if prod(2 * s + 1 for s in spins) <= 250:
             break
     edges = {(rng.randrange(i), i) for i in range(1, n_sites)}  # a random tree ...
     edges |= {tuple(sorted(rng.sample(range(n_sites), 2))) for _ in range(rng.randint(0, n_sites))}  # ... plus loops
@@ -232,6 +232,15 @@ def test_random_cluster_matches_dense_diagonalisation(seed):
         scale = max(abs(float(c)) for c in exact_series)
         for n, (a, b) in enumerate(zip(exact_series, dense_series)):
             assert isclose(float(a), b, rel_tol=1e-10, abs_tol=1e-13 * scale), (name, n, float(a), b)
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_spectral_bound_exceeds_every_eigenvalue(seed):
+    # The number of primes rests on |eigenvalue of scale * H0| <= spectral_bound; check it on float spectra.
+    ham = random_cluster(random.Random(seed))
+    couplings = integer_couplings(ham)
+    largest = max(np.abs(energies).max() for energies in cluster_spectrum(ham).values())
+    assert couplings.scale * largest <= couplings.spectral_bound * (1 + 1e-12)
 
 
 def sympy_hamiltonian(ham: ClusterHamiltonian):
