@@ -17,8 +17,8 @@ each sector m >= 0 as traces of powers of an integer matrix (a diagonal similari
 :mod:`hte.spin_matrices`), modulo primes below 2^26 with a numba kernel and Chinese remaindering
 (:mod:`hte.modular`); then the moments are turned into the three cumulant series with exact rationals.
 
-References
-----------
+References (cited from memory)
+------------------------------
 .. [1] G. S. Rushbrooke and P. J. Wood, Mol. Phys. 1, 257 (1958): high-temperature series from traces of
        powers of the Hamiltonian.
 .. [2] M. P. Gelfand, R. R. P. Singh and D. A. Huse, J. Stat. Phys. 59, 1093 (1990): linked-cluster expansions

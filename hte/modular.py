@@ -11,8 +11,8 @@ product of two residues is below :math:`p^2 < 2^{52}`, and the sparse product ac
 ``max_row_length * max_entry * p < 2^52`` before it reduces (the caller picks the prime size with
 :func:`prime_bits_for`).
 
-References
-----------
+References (cited from memory)
+------------------------------
 .. [1] D. E. Knuth, The Art of Computer Programming, vol. 2, 3rd ed. (1997), sec. 4.3.2 (modular arithmetic
        and the Chinese remainder theorem).
 .. [2] C. Pomerance, J. L. Selfridge and S. S. Wagstaff, Math. Comp. 35, 1003 (1980): the smallest strong

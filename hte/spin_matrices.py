@@ -17,8 +17,8 @@ Two gauges of the same operator:
 
 References
 ----------
-.. [1] A. Auerbach, Interacting Electrons and Quantum Magnetism (Springer, 1994), ch. 2 (spin operators and
-       their matrix elements).
+.. [1] J. J. Sakurai, Modern Quantum Mechanics (Addison-Wesley, 1994), sec. 3.5: matrix elements of the
+       angular-momentum ladder operators (cited from memory).
 """
 
 from __future__ import annotations

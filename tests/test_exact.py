@@ -94,7 +94,7 @@ def coupled_spins(spin, count: int) -> dict:
 def kambe_levels(spin, count: int, coupling):
     """All-to-all equal couplings J among `count` spins S (dimer: 2, triangle: 3):
     H = J sum_{i<j} S_i.S_j = (J/2) [S_T(S_T+1) - count S(S+1)].  Source: K. Kambe, J. Phys. Soc. Jpn. 5, 48
-    (1950) (total-spin coupling for spin clusters)."""
+    (1950) (total-spin coupling for spin clusters; cited from memory)."""
     spin = sp.Rational(spin)
     levels = []
     for total, times in coupled_spins(spin, count).items():
@@ -138,6 +138,13 @@ def test_dimer_and_triangle_match_total_spin_levels(spin, shape):
     coupling = Fraction(2, 3)
     expected = cumulants_from_levels(kambe_levels(spin, count, coupling), 8)
     result = cluster_cumulants(heisenberg([spin] * count, edges, coupling), 8)
+    assert [result.lnz, result.m2, result.m4] == expected
+
+
+def test_high_order_triangle_matches_total_spin_levels():
+    # Order 24 needs many primes (traces up to ~2^150): the Chinese-remainder reconstruction at full size.
+    expected = cumulants_from_levels(kambe_levels(Fraction(5, 2), 3, Fraction(-1, 3)), 24)
+    result = cluster_cumulants(heisenberg([Fraction(5, 2)] * 3, [(0, 1), (1, 2), (0, 2)], Fraction(-1, 3)), 24)
     assert [result.lnz, result.m2, result.m4] == expected
 
 
