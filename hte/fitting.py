@@ -416,6 +416,31 @@ class FitResult:
         doc.update(self.extra)
         return doc
 
+    def model_band(self, quantity: str, temperature, field_tesla) -> tuple:
+        """Model estimate, lower and upper edge at (T, B) in laboratory units, at the fitted values.
+
+        The band is the Padé band of the zero-field magnetic part (relative width), applied to the magnetic
+        part at the field, widened by the field-expansion truncation error; backgrounds are added unchanged.
+        """
+        lab, values = self.lab, self.values()
+        temperature = np.asarray(temperature, dtype=float)
+        field_tesla = np.broadcast_to(np.asarray(field_tesla, dtype=float), temperature.shape)
+        total, field_error, _ = lab.evaluate(quantity, temperature, field_tesla, values, with_error=True)
+        background = {"chi": lambda: lab.impurity_chi(temperature, field_tesla, values) + values["chi0"],
+                      "C": lambda: lab.background_heat_capacity(temperature, field_tesla, values),
+                      "M": lambda: lab.impurity_moment(temperature, field_tesla, values)
+                      + lab_units.to_canonical(values["chi0"] * field_tesla * 1e4, "M", "emu/mol")}[quantity]()
+        magnetic = total - background
+        scale = lab.reduced_temperature(values)
+        sign = 1 if lab.coupling_kelvin(values) > 0 else -1
+        curve = lab.curves.curves(lab.symbol_values(values), temperature / scale, sign=sign)
+        band = curve.curves["C" if quantity == "C" else "chi"]
+        grid = curve.temperatures * scale
+        with np.errstate(divide="ignore", invalid="ignore"):
+            relative = np.interp(temperature, grid, (band.upper - band.lower) / (2 * np.abs(band.estimate)))
+        half = np.abs(magnetic) * np.nan_to_num(relative, nan=np.inf) + field_error
+        return total, total - half, total + half
+
     def _dataset_report(self, d: DataSet) -> dict:
         m = d.measurement
         used = d.used if d.used is not None else np.zeros(len(m), dtype=bool)
@@ -546,6 +571,12 @@ def _least_squares(lab, datasets, parameters, free, max_evaluations, progress):
     if points <= len(free):
         raise ParameterError(f"{points} points in the fit window for {len(free)} free parameters; fix some "
                              "parameters or supply more data above T_min")
+    for i, name in enumerate(free):     # a start exactly on a bound can leave the optimiser stuck there
+        nudge = 0.1 * _typical_scale(name) / scales[name]
+        if x0[i] == lower[i]:
+            x0[i] = min(lower[i] + nudge, 0.5 * (lower[i] + upper[i]) if np.isfinite(upper[i]) else np.inf)
+        elif x0[i] == upper[i]:
+            x0[i] = max(upper[i] - nudge, 0.5 * (lower[i] + upper[i]) if np.isfinite(lower[i]) else -np.inf)
     solution = least_squares(residuals, x0, bounds=(lower, upper), x_scale="jac", diff_step=1e-6,
                              max_nfev=max_evaluations, method="trf")
     if solution.status == 0:
@@ -555,8 +586,25 @@ def _least_squares(lab, datasets, parameters, free, max_evaluations, progress):
             "give better start values (--start), fix poorly determined parameters (--fix), or narrow --bounds")
     if solution.status < 0:
         raise FitDidNotConvergeError(f"the optimiser failed: {solution.message}")
+    solution.jac = _jacobian(residuals, solution.x, solution.fun, lower, upper)
     solution.scales = np.array([scales[n] for n in free])
     return solution, counter["n"]
+
+
+def _jacobian(residuals, x, f0, lower, upper) -> np.ndarray:
+    """Forward-difference Jacobian at the solution, stepping into the feasible side of each bound.
+
+    (The optimiser's own Jacobian has zero columns for parameters on an active bound.)
+    """
+    columns = []
+    for i in range(x.size):
+        step = 1e-6 * max(1.0, abs(x[i]))
+        if x[i] + step > upper[i]:
+            step = -step
+        shifted = x.copy()
+        shifted[i] += step
+        columns.append((residuals(shifted) - f0) / step)
+    return np.column_stack(columns)
 
 
 def _describe(values: dict, names) -> str:
@@ -658,7 +706,11 @@ def entropy_check(result: FitResult) -> list[dict]:
             continue
         m = d.measurement
         magnetic = m.value - lab.background_heat_capacity(m.temperature, d.fields, values)
-        entropy = magnetic_entropy(m.temperature, magnetic)
+        try:
+            entropy = magnetic_entropy(m.temperature, magnetic)
+        except ParameterError as exc:
+            out.append({"file": m.source, "note": f"entropy not integrated: {exc}"})
+            continue
         t_max = float(m.temperature.max())
         sign = 1 if lab.coupling_kelvin(values) > 0 else -1
         curve = lab.curves.curves(symbols, np.array([t_max / scale]), sign=sign)
