@@ -298,14 +298,13 @@ def _window(lab: LabModel, dataset: DataSet, values: dict, margin: float, tolera
     """Select the points at T >= margin · T_conv (at `values`) where the field expansion holds."""
     m = dataset.measurement
     scale = lab.reduced_temperature(values)
-    grid = np.geomspace(0.5 * m.temperature.min() / scale, max(m.temperature.max() / scale, 1.0) * 1.01, 240)
-    curve_set = lab.curves.curves(lab.symbol_values(values), grid, sign=1 if lab.coupling_kelvin(values) > 0 else -1,
-                                  tolerance=tolerance)
-    t_conv = curve_set.T_conv.get("C" if dataset.quantity == "C" else "chi")
+    sign = 1 if lab.coupling_kelvin(values) > 0 else -1
+    t_conv = lab.curves.convergence_temperatures(lab.symbol_values(values), sign=sign,
+                                                 tolerance=tolerance)["C" if dataset.quantity == "C" else "chi"]
     if t_conv is None:
-        raise DataFileError(f"{m.source}: the model's {dataset.quantity} band is wider than {tolerance:.0%} already "
-                            f"at T = {grid.max() * scale:.4g} K; there is no converged range to fit (raise the "
-                            "order or the tolerance)")
+        raise DataFileError(f"{m.source}: the model's {dataset.quantity} band is wider than {tolerance:.0%} at "
+                            f"every temperature up to {50 * scale:.4g} K; there is no converged range to fit "
+                            "(raise the order or the tolerance)")
     dataset.t_conv_kelvin = float(t_conv * scale)
     dataset.t_min = margin * dataset.t_conv_kelvin
     above = m.temperature >= dataset.t_min

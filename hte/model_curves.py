@@ -53,6 +53,8 @@ PER_CHOICES = ("site", "cell", "magnetic", "host")
 HOST_CLASS = "magnetic"
 #: A field correction is used while |next term / first term| stays below this (else the point is flagged).
 FIELD_LIMIT = 0.05
+#: Temperatures (units of |J1|) on which convergence temperatures are read off.
+CONVERGENCE_GRID = np.geomspace(0.05, 50.0, 241)
 
 
 @dataclass(frozen=True)
@@ -155,6 +157,7 @@ class ModelCurves:
         self._m4 = _compile(block["M4"], self.parameters)
         self._site_scale = self._normalisation()
         self._ensembles: dict = {}
+        self._t_conv: dict = {}
 
     # ------------------------------------------------------------------ construction
     @classmethod
@@ -288,6 +291,18 @@ class ModelCurves:
                "series": {k: [float(c) for c in v] for k, v in coefficients.items()}}
         return curves_from_series(doc, "pade", temperatures=temperatures, tolerance=tolerance)
 
+    def convergence_temperatures(self, values: dict, *, sign: int = 1, tolerance: float = 0.01) -> dict:
+        """T_conv of χ* and C (units of |J1|) at parameter `values`, on the grid :data:`CONVERGENCE_GRID`.
+
+        Remembered per (values, sign, tolerance): in a fit that varies only J1, g and backgrounds the
+        convergence temperature in units of |J1| does not change.
+        """
+        key = (tuple(float(values[n]) for n in self.parameters), int(sign), float(tolerance))
+        if key not in self._t_conv:
+            curve_set = self.curves(values, CONVERGENCE_GRID, sign=sign, tolerance=tolerance)
+            self._t_conv[key] = {name: curve_set.T_conv.get(name) for name in ("chi", "C")}
+        return dict(self._t_conv[key])
+
     # ------------------------------------------------------------------ fast estimates
     def evaluate(self, quantity: str, temperatures, values: dict, *, field=0.0, sign: int = 1) -> ReducedValues:
         """χ* (quantity "chi", M/h), C ("C") or m = ⟨S^z⟩ ("m") per normalisation unit at (T, h).
@@ -324,8 +339,8 @@ class ModelCurves:
             if in_field:
                 chit = self._approximants("chiT", c["chiT"], beta)
                 m4 = self._approximants("M4", c["M4"], beta)
-                first = bh2 * self._second_derivative(chit, beta, power=2) / 2.0
-                second = bh2 ** 2 * self._second_derivative(m4, beta, power=4) / 24.0
+                first = field ** 2 * self._second_derivative(chit, beta, power=2) / 2.0
+                second = field ** 4 * self._second_derivative(m4, beta, power=4) / 24.0
             estimate = base + first + second
         else:
             first = beta * self._estimate(self._approximants("chiT", c["chiT"], beta), beta)
