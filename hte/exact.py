@@ -195,7 +195,11 @@ def _integer_power_traces(ham: ClusterHamiltonian, order: int) -> tuple[int, dic
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
     matrices = [integer_sector_matrix(sector, couplings) for sector in sectors]
     bound = max(sector.dim for sector in sectors) * max(couplings.spectral_bound, 1) ** order
-    bits = prime_bits_for(max(m.max_row_length for m in matrices), max(m.max_abs_entry for m in matrices))
+    bits = prime_bits_for(
+        max(m.max_row_length for m in matrices),
+        max(m.max_abs_entry for m in matrices),
+        max(sector.dim for sector in sectors),
+    )
     primes = primes_exceeding(bits, bound)
     traces = {}
     for sector, matrix in zip(sectors, matrices):
@@ -307,7 +311,7 @@ def cluster_spectrum(ham: ClusterHamiltonian) -> dict[Fraction, np.ndarray]:
     for sector in spin_sectors(ham.twice_spins, nonnegative_only=True):
         energies = np.linalg.eigvalsh(float_sector_matrix(sector, ham))
         spectrum[sector.magnetization] = energies
-        spectrum[-sector.magnetization] = energies
+        spectrum[-sector.magnetization] = energies.copy()
     return dict(sorted(spectrum.items()))
 
 

@@ -86,16 +86,21 @@ def primes_exceeding(bits: int, bound: int) -> tuple[int, ...]:
     return primes_below(bits, count)
 
 
-def prime_bits_for(max_row_length: int, max_abs_entry: int) -> int:
+def prime_bits_for(max_row_length: int, max_abs_entry: int, max_dimension: int) -> int:
     """Largest prime size (bits, at most 26) for which :func:`power_traces_mod` stays exact.
 
-    Entries are reduced to symmetric residues |v| <= p/2, so the bound uses min(max_abs_entry, p/2).
+    Entries are reduced to symmetric residues |v| <= p/2, so a row of the sparse product sums at most
+    max_row_length * min(max_abs_entry, p/2) * p; a column of the trace sums at most max_dimension * p.
+    Both must stay below 2**52.
     """
     for bits in range(MAX_PRIME_BITS, 1, -1):
         entry = min(max_abs_entry, 2 ** (bits - 1))
-        if max(max_row_length, 1) * entry * 2**bits < _EXACT_FLOAT_LIMIT:
+        row_sum = max(max_row_length, 1) * entry * 2**bits
+        if row_sum < _EXACT_FLOAT_LIMIT and max_dimension * 2**bits < _EXACT_FLOAT_LIMIT:
             return bits
-    raise ValueError(f"no prime size keeps rows of {max_row_length} entries below 2**52")
+    raise ValueError(
+        f"no prime size keeps rows of {max_row_length} entries and sectors of {max_dimension} states below 2**52"
+    )
 
 
 def crt_signed(residues: list[int], primes: tuple[int, ...]) -> int:
@@ -212,7 +217,7 @@ def _weighted_overlap(left, right, column_weight, start, width, modulus, inverse
     column_sums = np.zeros(width)
     for a in range(dim):
         for c in range(width):
-            column_sums[c] += _reduce(left[a, c] * right[a, c], modulus, inverse)  # < 2**26 each, dim < 2**26
+            column_sums[c] += _reduce(left[a, c] * right[a, c], modulus, inverse)  # < p each; dim * p < 2**52
     total = 0.0
     for c in range(width):
         term = _reduce(column_sums[c], modulus, inverse) * column_weight[start + c]

@@ -22,7 +22,7 @@ from sympy.polys.rings import ring
 
 from hte.errors import ParameterError, ResourceLimitError
 from hte.exact import ClusterHamiltonian, cluster_cumulants, cluster_spectrum, dense_cumulants_float
-from hte.modular import crt_signed, is_prime, power_traces_mod, primes_below, symmetric_residues
+from hte.modular import crt_signed, is_prime, power_traces_mod, prime_bits_for, primes_below, symmetric_residues
 from hte.spin_matrices import gauge_weights_mod, integer_couplings, integer_sector_matrix, spin_sectors
 
 HALF = Fraction(1, 2)
@@ -372,6 +372,17 @@ def test_is_prime_agrees_with_sympy():
     assert [is_prime(n) for n in numbers] == [sp.isprime(n) for n in numbers]  # to bases 2, 3, 5 (from memory)
     with pytest.raises(ValueError, match="deterministic only"):
         is_prime(3_215_031_751)
+
+
+@pytest.mark.parametrize("row_length, entry, dimension", [(14, 3, 1716), (40, 2**40, 10), (4, 5, 2**30)])
+def test_prime_size_keeps_every_partial_sum_exact_in_float64(row_length, entry, dimension):
+    # Exactness of float64 integers below 2**52 (IEEE 754 double: 53-bit significand; common practice).
+    bits = prime_bits_for(row_length, entry, dimension)
+    p = 2**bits
+    assert row_length * min(entry, p // 2) * p < 2**52 and dimension * p < 2**52
+    if bits < 26:  # and it is the largest such size
+        p = 2 ** (bits + 1)
+        assert row_length * min(entry, p // 2) * p >= 2**52 or dimension * p >= 2**52
 
 
 def test_crt_signed_recovers_signed_integers():
