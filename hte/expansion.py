@@ -26,17 +26,16 @@ References
 from __future__ import annotations
 
 import json
-import math
 import sys
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from fractions import Fraction
 
 import sympy
 
-from hte.canonical import canonical_graph, certificate_key, key_to_graph
+from hte.canonical import canonical_graph, key_to_graph
 from hte.clusters import ClusterCensus, enumerate_clusters, subgraph_counts
+from hte.executors import run_jobs
 from hte.graph import ColouredGraph
 from hte.models import SpinModel
 from hte.polynomial import add_into, interpolate, interpolation_points
@@ -133,8 +132,9 @@ class Progress:
 class WeightBook:
     """Raw cluster series and linked weights of valued graphs, backed by the persistent cache."""
 
-    def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False):
+    def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False, scheduler: str | None = None):
         self.order = order
+        self.scheduler = scheduler
         self.cache = cache
         self.workers = workers
         self.progress = progress
@@ -181,14 +181,11 @@ class WeightBook:
                 pending.clear()
 
         try:
-            if self.workers > 1 and len(jobs) > 1:
-                with ProcessPoolExecutor(max_workers=self.workers) as pool:
-                    futures = [pool.submit(_raw_job, j) for j in jobs]
-                    for fut in as_completed(futures):
-                        accept(*fut.result())
-            else:
-                for j in jobs:
-                    accept(*_raw_job(j))
+            run_jobs(_raw_job, jobs, lambda result: accept(*result), workers=self.workers,
+                     scheduler=self.scheduler)
+        except KeyboardInterrupt:
+            raise KeyboardInterrupt(f"{self.computed} of {len(jobs)} cluster series were finished and kept in the "
+                                    "weight cache; rerun the same command to resume") from None
         finally:
             if self.cache is not None and pending:
                 self.cache.put_many(pending)
@@ -274,7 +271,7 @@ def _times(poly: dict, scalar_poly: dict) -> dict:
 
 
 def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers: int = 1, progress: bool = False,
-                   census: ClusterCensus | None = None) -> LatticeSeries:
+                   census: ClusterCensus | None = None, scheduler: str | None = None) -> LatticeSeries:
     """Exact series of ln Z, <M^2>_c and <M^4>_c per unit cell of `lattice` for `model`, to beta^order."""
     from hte.errors import ParameterError
 
@@ -303,7 +300,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     t_enum = time.perf_counter() - t0
     site_classes = list(spec.site_classes)
     labels = list(spec.labels)
-    book = WeightBook(order, cache=cache, workers=workers, progress=progress)
+    book = WeightBook(order, cache=cache, workers=workers, progress=progress, scheduler=scheduler)
 
     def vertex_value(class_index):
         name = site_classes[class_index]

@@ -70,9 +70,9 @@ def main(argv=None) -> int:
         except OSError:
             pass
         return 0
-    except KeyboardInterrupt:
-        print(f"hte {args.command}: interrupted; finished work is kept (rerun the same command to resume)",
-              file=sys.stderr)
+    except KeyboardInterrupt as exc:
+        detail = str(exc) or "finished work is kept; rerun the same command to resume"
+        print(f"hte {args.command}: interrupted: {detail}", file=sys.stderr)
         return 130
     except Exception as exc:  # noqa: BLE001 - the contract is exit code 1 with a one-line message
         if args.traceback:

@@ -42,6 +42,8 @@ def add_series_arguments(parser) -> None:
     parser.add_argument("--symbolic", action="store_true",
                         help="keep couplings (and symbolic occupations) as symbols: polynomial coefficients")
     parser.add_argument("--workers", type=int, default=None, help="processes to use (default: all cores)")
+    parser.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                        help="run the cluster series on a Dask distributed scheduler (e.g. tcp://head:8786)")
     parser.add_argument("--no-tables", action="store_true", help="ignore the shipped tables in tables/")
     parser.add_argument("--no-cache", action="store_true", help="do not read or write the weight cache")
 
@@ -89,7 +91,8 @@ def series_from_args(args, *, default_order: int | None = None):
     from hte.expansion import expand_lattice
 
     try:
-        ls = expand_lattice(spec, model, order, cache=cache, workers=workers, progress=sys.stderr.isatty())
+        ls = expand_lattice(spec, model, order, cache=cache, workers=workers, progress=sys.stderr.isatty(),
+                            scheduler=args.scheduler)
     finally:
         if cache is not None:
             cache.close()
