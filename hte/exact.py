@@ -37,7 +37,13 @@ import numpy as np
 
 from hte.errors import ParameterError, ResourceLimitError
 from hte.modular import crt_signed, power_traces_mod, prime_bits_for, primes_exceeding, symmetric_residues
-from hte.spin_matrices import float_sector_matrix, gauge_weights_mod, integer_couplings, integer_sector_matrix, spin_sectors
+from hte.spin_matrices import (
+    float_sector_matrix,
+    gauge_weights_mod,
+    integer_couplings,
+    integer_sector_matrix,
+    spin_sectors,
+)
 
 _BLOCK_ENTRIES = 2**20  # unit vectors propagated together: dim * block <= this (3 float64 buffers, 24 MiB)
 _BLOCK_MAX = 64
@@ -177,8 +183,9 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     """
     order = _check_order(order)
     scale, traces = _integer_power_traces(ham, order)
+    multiplicity = {twice_m: 1 if twice_m == 0 else 2 for twice_m in traces}  # sectors m and -m
     sums = {
-        q: [sum((1 if twice_m == 0 else 2) * twice_m**q * t[k] for twice_m, t in traces.items()) for k in range(order + 1)]
+        q: [sum(multiplicity[tm] * tm**q * t[k] for tm, t in traces.items()) for k in range(order + 1)]
         for q in (0, 2, 4)
     }
     return _cumulants_from_integer_moments(sums, scale, order)

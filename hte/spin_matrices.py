@@ -134,7 +134,10 @@ def integer_couplings(ham) -> IntegerCouplings:
     values = [c for _, _, jxy, jz in ham.bonds for c in (jxy, jz)] + list(ham.anisotropy)
     scale = 4 * lcm(1, *(Fraction(v).denominator for v in values))
     twice = ham.twice_spins
-    bonds = tuple((u, v, _as_integer(Fraction(scale, 2) * jxy), _as_integer(Fraction(scale, 4) * jz)) for u, v, jxy, jz in ham.bonds)
+    bonds = tuple(
+        (u, v, _as_integer(Fraction(scale, 2) * jxy), _as_integer(Fraction(scale, 4) * jz))
+        for u, v, jxy, jz in ham.bonds
+    )
     anisotropy = tuple(_as_integer(Fraction(scale, 4) * d) for d in ham.anisotropy)
     bound = sum((abs(flip) + abs(zz)) * twice[u] * twice[v] for u, v, flip, zz in bonds)
     bound += sum(abs(d) * t * t for d, t in zip(anisotropy, twice))

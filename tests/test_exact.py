@@ -168,7 +168,8 @@ def test_ising_ring_of_four_matches_transfer_matrix(jz):
     # writes H = -J sum s s' - H sum s, so his J = -Jz/4 and his H = h/2 here.
     beta, field = sp.symbols("beta field")  # field = beta h
     s = (1, -1)
-    transfer = sp.Matrix(2, 2, lambda i, j: sp.exp(-beta * sp.Rational(jz) * s[i] * s[j] / 4 + field * (s[i] + s[j]) / 4))
+    coupling = sp.Rational(jz)
+    transfer = sp.Matrix(2, 2, lambda i, j: sp.exp(-beta * coupling * s[i] * s[j] / 4 + field * (s[i] + s[j]) / 4))
     partition = (transfer**4).trace()
     sums = []
     for q in (0, 2, 4):
@@ -204,7 +205,8 @@ def test_spectrum_of_triangle_matches_total_spin_levels():
     assert sorted(spectrum) == [Fraction(m) for m in range(-3, 4)]
     for magnetization, energies in spectrum.items():
         expected = sorted(
-            float(energy) for energy, states in levels for m, times in states if m == magnetization for _ in range(times)
+            float(energy) for energy, states in levels for m, times in states if m == magnetization
+            for _ in range(times)
         )
         np.testing.assert_allclose(energies, expected, atol=1e-12)
 
@@ -238,6 +240,8 @@ def test_random_cluster_matches_dense_diagonalisation(seed):
         exact_series, dense_series = getattr(exact, name), getattr(dense, name)
         scale = max(abs(float(c)) for c in exact_series)
         for n, (a, b) in enumerate(zip(exact_series, dense_series)):
+            # 1e-10 relative; coefficients that cancel to nearly zero get an absolute floor of 1e-13 x the
+            # series' largest coefficient (float round-off of the moments, common practice)
             assert isclose(float(a), b, rel_tol=1e-10, abs_tol=1e-13 * scale), (name, n, float(a), b)
 
 
@@ -362,7 +366,9 @@ def test_sector_traces_match_python_integer_matrix_powers():
     for prime in primes:
         row_weight, column_weight = (w.astype(float) for w in gauge_weights_mod(sector, ham.twice_spins, prime))
         values = symmetric_residues(matrix.values, prime)
-        residues.append(power_traces_mod(matrix.indptr, matrix.indices, values, row_weight, column_weight, order, prime, 5))
+        residues.append(
+            power_traces_mod(matrix.indptr, matrix.indices, values, row_weight, column_weight, order, prime, 5)
+        )
     assert [crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)] == expected
 
 
