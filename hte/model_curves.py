@@ -53,8 +53,8 @@ PER_CHOICES = ("site", "cell", "magnetic", "host")
 HOST_CLASS = "magnetic"
 #: A field correction is used while |next term / first term| stays below this (else the point is flagged).
 FIELD_LIMIT = 0.05
-#: Temperatures (units of |J1|) on which convergence temperatures are read off.
-CONVERGENCE_GRID = np.geomspace(0.05, 50.0, 241)
+#: Lowest temperature (units of |J1|) at which a convergence temperature is looked for.
+CONVERGENCE_GRID_FLOOR = 0.05
 
 
 @dataclass(frozen=True)
@@ -292,15 +292,28 @@ class ModelCurves:
         return curves_from_series(doc, "pade", temperatures=temperatures, tolerance=tolerance)
 
     def convergence_temperatures(self, values: dict, *, sign: int = 1, tolerance: float = 0.01) -> dict:
-        """T_conv of χ* and C (units of |J1|) at parameter `values`, on the grid :data:`CONVERGENCE_GRID`.
+        """Self-consistent T_conv of χ* and C (units of |J1|) at parameter `values`; None where there is none.
 
-        Remembered per (values, sign, tolerance): in a fit that varies only J1, g and backgrounds the
-        convergence temperature in units of |J1| does not change.
+        T_conv of a band depends on the lowest temperature asked for, because approximants are screened for
+        poles on the whole segment β ∈ (0, 1/T_lowest].  Scanning T_lowest down from 10 by factors of 1.25,
+        each quantity gets the lowest T_conv that is at or above the T_lowest it was computed with (a band
+        judged with approximants screened down to where it is used) over the whole scan down to
+        :data:`CONVERGENCE_GRID_FLOOR`.  Remembered per (values, sign, tolerance): in a fit that varies only
+        J1, g and backgrounds it does not change.
         """
         key = (tuple(float(values[n]) for n in self.parameters), int(sign), float(tolerance))
         if key not in self._t_conv:
-            curve_set = self.curves(values, CONVERGENCE_GRID, sign=sign, tolerance=tolerance)
-            self._t_conv[key] = {name: curve_set.T_conv.get(name) for name in ("chi", "C")}
+            best: dict = {"chi": None, "C": None}
+            lowest = 10.0
+            while lowest > CONVERGENCE_GRID_FLOOR:
+                grid = np.geomspace(lowest, max(50.0, 20.0 * lowest), 121)
+                found = self.curves(values, grid, sign=sign, tolerance=tolerance).T_conv
+                for name in best:
+                    t = found.get(name)
+                    if t is not None and t >= lowest and (best[name] is None or t < best[name]):
+                        best[name] = t
+                lowest /= 1.25
+            self._t_conv[key] = best
         return dict(self._t_conv[key])
 
     # ------------------------------------------------------------------ fast estimates
