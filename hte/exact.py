@@ -35,6 +35,7 @@ from math import comb, factorial, prod
 
 import numpy as np
 
+from hte.cluster_symmetry import site_automorphisms, state_orbits
 from hte.errors import ParameterError, ResourceLimitError
 from hte.modular import crt_signed, power_traces_mod, prime_bits_for, primes_exceeding, symmetric_residues
 from hte.spin_matrices import (
@@ -47,6 +48,7 @@ from hte.spin_matrices import (
 
 _BLOCK_ENTRIES = 2**20  # unit vectors propagated together: dim * block <= this (3 float64 buffers, 24 MiB)
 _BLOCK_MAX = 64
+_SYMMETRY_MIN_DIM = 64  # below this sector size the symmetry search costs more than it saves
 _DENSE_MAX_STATES = 2**13  # the dense reference refuses larger clusters (a 2**13 matrix takes 512 MiB)
 
 
@@ -191,35 +193,50 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     return _cumulants_from_integer_moments(sums, scale, order)
 
 
-def _integer_power_traces(ham: ClusterHamiltonian, order: int) -> tuple[int, dict[int, list[int]]]:
+def _integer_power_traces(
+    ham: ClusterHamiltonian, order: int, use_symmetry: bool | None = None
+) -> tuple[int, dict[int, list[int]]]:
     """scale and {2m: [Tr_m(A^k) for k = 0..order]} for m >= 0, A = scale * H0 in the integer gauge.
 
     The primes' product exceeds 2 d R^order >= 2 |Tr_m A^k| (A is similar to a real symmetric matrix with
     spectral radius <= R, :attr:`hte.spin_matrices.IntegerCouplings.spectral_bound`), so Chinese remaindering
-    is exact.
+    is exact.  With ``use_symmetry`` (default: when some sector has at least _SYMMETRY_MIN_DIM states) only
+    one unit vector per orbit of the cluster's symmetries is propagated (:mod:`hte.cluster_symmetry`); the
+    result is identical.
     """
     couplings = integer_couplings(ham)
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
+    largest = max(sector.dim for sector in sectors)
+    if use_symmetry is None:
+        use_symmetry = largest >= _SYMMETRY_MIN_DIM
+    automorphisms = site_automorphisms(ham) if use_symmetry else []
     matrices = [integer_sector_matrix(sector, couplings) for sector in sectors]
-    bound = max(sector.dim for sector in sectors) * max(couplings.spectral_bound, 1) ** order
     bits = prime_bits_for(
-        max(m.max_row_length for m in matrices),
-        max(m.max_abs_entry for m in matrices),
-        max(sector.dim for sector in sectors),
+        max(m.max_row_length for m in matrices), max(m.max_abs_entry for m in matrices), largest
     )
-    primes = primes_exceeding(bits, bound)
+    primes = primes_exceeding(bits, largest * max(couplings.spectral_bound, 1) ** order)
     traces = {}
     for sector, matrix in zip(sectors, matrices):
+        if use_symmetry:
+            columns, orbit_sizes = state_orbits(sector, ham.twice_spins, automorphisms)
+        else:
+            columns, orbit_sizes = np.arange(sector.dim), np.ones(sector.dim, dtype=np.int64)
         block = max(1, min(_BLOCK_MAX, _BLOCK_ENTRIES // sector.dim))
         residues = []
         for prime in primes:
-            row_weight, column_weight = (
-                w.astype(np.float64) for w in gauge_weights_mod(sector, ham.twice_spins, prime)
-            )
-            values = symmetric_residues(matrix.values, prime)
+            row_weight, column_weight = gauge_weights_mod(sector, ham.twice_spins, prime)
+            column_weight = column_weight[columns] * (orbit_sizes % prime) % prime
             residues.append(
                 power_traces_mod(
-                    matrix.indptr, matrix.indices, values, row_weight, column_weight, order, prime, block
+                    matrix.indptr,
+                    matrix.indices,
+                    symmetric_residues(matrix.values, prime),
+                    row_weight.astype(np.float64),
+                    columns.astype(np.int64),
+                    column_weight.astype(np.float64),
+                    order,
+                    prime,
+                    block,
                 )
             )
         traces[sector.twice_magnetization] = [

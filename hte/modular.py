@@ -122,13 +122,15 @@ def symmetric_residues(values: np.ndarray, prime: int) -> np.ndarray:
 
 
 @njit(cache=True)
-def power_traces_mod(indptr, indices, values, row_weight, column_weight, order, prime, block):
-    r"""Weighted traces of powers of a sparse integer matrix, modulo ``prime``.
+def power_traces_mod(indptr, indices, values, row_weight, columns, column_weight, order, prime, block):
+    r"""Weighted sums of diagonal elements of powers of a sparse integer matrix, modulo ``prime``.
 
-    Returns t[k] = sum_{a,b} column_weight[b] row_weight[a] (A^i)_{ab} (A^j)_{ab} mod prime for k = i + j,
-    i = ceil(k/2), j = floor(k/2), k = 0..order, as int64.  If A = C^{-1} S C with S symmetric and C diagonal,
-    and row_weight = c^2, column_weight = c^{-2} (as residues), then (A^j)_{ab} c_a^2 / c_b^2 = (A^j)_{ba} and
-    t[k] = Tr(A^k) mod prime.  For symmetric A pass weights of 1.
+    Returns t[k] = sum_{b in columns} column_weight[b] sum_a row_weight[a] (A^i)_{ab} (A^j)_{ab} mod prime for
+    k = i + j, i = ceil(k/2), j = floor(k/2), k = 0..order, as int64.  If A = C^{-1} S C with S symmetric and C
+    diagonal, row_weight = c^2 and column_weight = c^{-2} (as residues), then (A^j)_{ab} c_a^2 / c_b^2 = (A^j)_{ba}
+    and the inner sum is (A^k)_{bb}: with all columns t[k] = Tr(A^k) mod prime (for symmetric A, weights of 1).
+    With orbit representatives as ``columns`` and orbit sizes folded into ``column_weight`` it is the same trace
+    (see :mod:`hte.cluster_symmetry`).
 
     Parameters
     ----------
@@ -136,8 +138,12 @@ def power_traces_mod(indptr, indices, values, row_weight, column_weight, order, 
         A in compressed-row form.
     values : float64 array
         Entries of A as integer-valued floats, residues with |v| <= prime/2.
-    row_weight, column_weight : float64 arrays
-        Residues in [0, prime) of the diagonal gauge, one per basis state.
+    row_weight : float64 array
+        Residues in [0, prime), one per basis state.
+    columns : int64 array
+        The columns b whose unit vectors are propagated.
+    column_weight : float64 array
+        Residues in [0, prime), one per entry of ``columns``.
     order : int
         Highest power K.
     prime : int
@@ -155,16 +161,17 @@ def power_traces_mod(indptr, indices, values, row_weight, column_weight, order, 
     modulus = float(prime)
     inverse = 1.0 / modulus
     traces = np.zeros(order + 1)
-    width_max = min(block, dim)
+    n_columns = columns.shape[0]
+    width_max = max(1, min(block, n_columns))
     current = np.empty((dim, width_max))
     following = np.empty((dim, width_max))
     weighted = np.empty((dim, width_max))
     unit_rows = np.all(row_weight == 1.0)
-    for start in range(0, dim, width_max):
-        width = min(width_max, dim - start)
+    for start in range(0, n_columns, width_max):
+        width = min(width_max, n_columns - start)
         current[:, :] = 0.0
         for c in range(width):
-            current[start + c, c] = 1.0
+            current[columns[start + c], c] = 1.0
         for power in range(order // 2 + 1):
             if unit_rows:
                 weighted[:, :width] = current[:, :width]

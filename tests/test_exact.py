@@ -20,8 +20,15 @@ from sympy.matrices import kronecker_product
 from sympy.polys.ring_series import rs_exp, rs_log, rs_mul, rs_series_inversion
 from sympy.polys.rings import ring
 
+from hte.cluster_symmetry import site_automorphisms, state_orbits
 from hte.errors import ParameterError, ResourceLimitError
-from hte.exact import ClusterHamiltonian, cluster_cumulants, cluster_spectrum, dense_cumulants_float
+from hte.exact import (
+    ClusterHamiltonian,
+    _integer_power_traces,
+    cluster_cumulants,
+    cluster_spectrum,
+    dense_cumulants_float,
+)
 from hte.modular import crt_signed, is_prime, power_traces_mod, prime_bits_for, primes_below, symmetric_residues
 from hte.spin_matrices import gauge_weights_mod, integer_couplings, integer_sector_matrix, spin_sectors
 
@@ -366,10 +373,63 @@ def test_sector_traces_match_python_integer_matrix_powers():
     for prime in primes:
         row_weight, column_weight = (w.astype(float) for w in gauge_weights_mod(sector, ham.twice_spins, prime))
         values = symmetric_residues(matrix.values, prime)
+        columns = np.arange(sector.dim)
         residues.append(
-            power_traces_mod(matrix.indptr, matrix.indices, values, row_weight, column_weight, order, prime, 5)
+            power_traces_mod(matrix.indptr, matrix.indices, values, row_weight, columns, column_weight, order, prime, 5)
         )
     assert [crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)] == expected
+
+
+# ------------------------------------------------------------------------------------------- symmetry
+def symmetric_clusters() -> dict[str, ClusterHamiltonian]:
+    third = Fraction(1, 3)
+    return {
+        "ring-8": heisenberg([HALF] * 8, ring_edges(8)),
+        "xxz-ring-6-spin-1": ClusterHamiltonian(
+            spins=(Fraction(1),) * 6,
+            bonds=tuple((u, v, third, -1) for u, v in ring_edges(6)),
+            anisotropy=(Fraction(1, 2),) * 6,
+        ),
+        # alternating couplings: only the rotations by two sites and some reflections survive
+        "alternating-ring-6": ClusterHamiltonian(
+            spins=(HALF,) * 6, bonds=tuple((u, v, 1 + (u % 2), 1 + (u % 2)) for u, v in ring_edges(6))
+        ),
+        # a star: 7! automorphisms, the search stops at its limit
+        "star-7-mixed": ClusterHamiltonian(
+            spins=(Fraction(3, 2),) + (HALF,) * 7, bonds=tuple((0, leaf, third, 2) for leaf in range(1, 8))
+        ),
+        # mirror-symmetric spins and D, with one bond that breaks the mirror symmetry
+        "broken-path": ClusterHamiltonian(
+            spins=(HALF, Fraction(1), Fraction(1), HALF),
+            bonds=((0, 1, 1, 1), (1, 2, 1, 1), (2, 3, 1, Fraction(6, 5))),
+            anisotropy=(0, third, third, 0),
+        ),
+    }
+
+
+@pytest.mark.parametrize("name", list(symmetric_clusters()))
+def test_symmetry_reduced_traces_equal_full_traces(name):
+    # Independent check: the same exact traces with every unit vector propagated (no symmetry used).
+    ham = symmetric_clusters()[name]
+    assert _integer_power_traces(ham, 10, use_symmetry=True) == _integer_power_traces(ham, 10, use_symmetry=False)
+
+
+def test_site_automorphisms_of_rings():
+    # The dihedral group of an N-ring has 2N elements (common practice); alternating couplings keep N of them.
+    clusters = symmetric_clusters()
+    assert len(site_automorphisms(clusters["ring-8"])) == 2 * 8 - 1  # identity excluded
+    assert len(site_automorphisms(clusters["alternating-ring-6"])) == 6 - 1
+    assert site_automorphisms(clusters["broken-path"]) == []
+    assert len(site_automorphisms(clusters["star-7-mixed"], limit=10)) == 10
+
+
+def test_state_orbits_partition_the_sector():
+    ham = symmetric_clusters()["ring-8"]
+    for sector in spin_sectors(ham.twice_spins, nonnegative_only=True):
+        representatives, sizes = state_orbits(sector, ham.twice_spins, site_automorphisms(ham))
+        assert sizes.sum() == sector.dim
+        # orbit sizes divide the group order: 16 (dihedral), times 2 with the spin flip at m = 0
+        assert all((32 if sector.twice_magnetization == 0 else 16) % size == 0 for size in sizes)
 
 
 # --------------------------------------------------------------------------------------- helpers, errors
