@@ -36,7 +36,7 @@ import sympy
 from hte.canonical import canonical_graph, key_to_graph
 from hte.clusters import ClusterCensus, enumerate_clusters, subgraph_counts
 from hte.executors import run_jobs
-from hte.graph import ColouredGraph
+from hte.graph import ColouredGraph, count_bridges
 from hte.models import SpinModel
 from hte.polynomial import add_into, interpolate, interpolation_points
 
@@ -132,8 +132,10 @@ class Progress:
 class WeightBook:
     """Raw cluster series and linked weights of valued graphs, backed by the persistent cache."""
 
-    def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False, scheduler: str | None = None):
+    def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False, scheduler: str | None = None,
+                 lnz_only: bool = False):
         self.order = order
+        self.lnz_only = lnz_only
         self.scheduler = scheduler
         self.cache = cache
         self.workers = workers
@@ -145,6 +147,15 @@ class WeightBook:
         self.computed = 0
         self.from_cache = 0
 
+    def negligible(self, vg: ValuedGraph) -> bool:
+        """True when only ln Z is wanted and the graph's weight vanishes to this order.
+
+        At h = 0 a term of ln Z that uses a bridge once is a product of one-point functions <S_a> of the two
+        halves, which vanish by the global spin flip (S^z) and the U(1) symmetry (S^x, S^y) of H0; so every
+        bridge appears at least twice and a graph with E bonds and b bridges starts at beta^(E + b).
+        """
+        return self.lnz_only and vg.graph.n_edges + count_bridges(vg.graph) > self.order
+
     def _cache_key(self, key: str) -> str:
         return f"{CACHE_FORMAT}|order={self.order}|{key}"
 
@@ -153,7 +164,7 @@ class WeightBook:
         todo = {}
         for vg in graphs:
             self.valued.setdefault(vg.key, vg)
-            if vg.key not in self.raw:
+            if vg.key not in self.raw and not self.negligible(vg):
                 todo[vg.key] = vg
         if not todo:
             return
@@ -196,6 +207,9 @@ class WeightBook:
         if key in self.linked:
             return self.linked[key]
         vg = self.valued[key]
+        if self.negligible(vg):
+            self.linked[key] = {q: [Fraction(0)] * (self.order + 1) for q in QUANTITIES}
+            return self.linked[key]
         w = {q: list(self.raw[key][q]) for q in QUANTITIES}
         if vg.graph.n_edges >= 1:
             for v in range(vg.graph.n_vertices):
@@ -271,8 +285,13 @@ def _times(poly: dict, scalar_poly: dict) -> dict:
 
 
 def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers: int = 1, progress: bool = False,
-                   census: ClusterCensus | None = None, scheduler: str | None = None) -> LatticeSeries:
-    """Exact series of ln Z, <M^2>_c and <M^4>_c per unit cell of `lattice` for `model`, to beta^order."""
+                   census: ClusterCensus | None = None, scheduler: str | None = None,
+                   quantities=QUANTITIES) -> LatticeSeries:
+    """Exact series of ln Z, <M^2>_c and <M^4>_c per unit cell of `lattice` for `model`, to beta^order.
+
+    ``quantities=("lnz",)`` asks for ln Z alone: graphs with E bonds and b bridges then start at beta^(E+b)
+    (see :meth:`WeightBook.negligible`), which removes most large trees from the work.
+    """
     from hte.errors import ParameterError
 
     if order < 1:
@@ -300,7 +319,11 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     t_enum = time.perf_counter() - t0
     site_classes = list(spec.site_classes)
     labels = list(spec.labels)
-    book = WeightBook(order, cache=cache, workers=workers, progress=progress, scheduler=scheduler)
+    quantities = tuple(q for q in QUANTITIES if q in quantities)
+    if not quantities:
+        raise ParameterError(f"quantities must include some of {', '.join(QUANTITIES)}")
+    book = WeightBook(order, cache=cache, workers=workers, progress=progress, scheduler=scheduler,
+                      lnz_only=quantities == ("lnz",))
 
     def vertex_value(class_index):
         name = site_classes[class_index]
@@ -311,6 +334,8 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     needed: dict[str, ValuedGraph] = {}
     for gc in classes:
         g = gc.graph
+        if book.lnz_only and g.n_edges + count_bridges(g) > order:
+            continue  # its ln Z weight vanishes to this order (WeightBook.negligible)
         present = []
         for _, _, col in g.edges:
             cpl = model.couplings[labels[col]]
@@ -351,7 +376,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     closure = {}
     for key in list(needed):
         vg = needed[key]
-        if vg.graph.n_edges > 1:
+        if vg.graph.n_edges > 1 and not book.negligible(vg):
             for sub_key in book._subgraphs(vg):
                 if sub_key not in book.raw:
                     closure[sub_key] = book.valued[sub_key]
@@ -364,10 +389,10 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
 
     # ---- lattice sum
     t2 = time.perf_counter()
-    terms = {q: [dict() for _ in range(order + 1)] for q in QUANTITIES}
+    terms = {q: [dict() for _ in range(order + 1)] for q in quantities}
     for gc, evaluations, present, homogeneous, n_free in plans:
         dil = _dilution_factor(model, site_classes, gc.graph, variables)
-        for q in QUANTITIES:
+        for q in quantities:
             for n in range(order + 1):
                 values = [book.weight(k)[q][n] for k in evaluations]
                 if not any(values):
@@ -382,7 +407,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
             continue
         w = book.weight(site_graph(vertex_value(site_classes.index(name))).key)
         dil = _dilution_factor(model, site_classes, ColouredGraph(1, (site_classes.index(name),), ()), variables)
-        for q in QUANTITIES:
+        for q in quantities:
             for n in range(order + 1):
                 if w[q][n]:
                     add_into(terms[q][n], _times({tuple([0] * len(variables)): w[q][n]}, dil), n_c)

@@ -38,3 +38,42 @@ class ColouredGraph:
         for u, v, c in self.edges:
             g.add_edge(u, v, colour=c)
         return g
+
+
+def count_bridges(graph: ColouredGraph) -> int:
+    """Number of bridges (edges whose removal disconnects their component), by Tarjan's low-link search."""
+    adjacency = [[] for _ in range(graph.n_vertices)]
+    for index, (u, v, _) in enumerate(graph.edges):
+        adjacency[u].append((v, index))
+        adjacency[v].append((u, index))
+    order = [-1] * graph.n_vertices
+    low = [0] * graph.n_vertices
+    counter = 0
+    bridges = 0
+    for root in range(graph.n_vertices):
+        if order[root] != -1:
+            continue
+        order[root] = low[root] = counter
+        counter += 1
+        stack = [(root, -1, iter(adjacency[root]))]
+        while stack:
+            vertex, via, neighbours = stack[-1]
+            advanced = False
+            for nxt, edge in neighbours:
+                if edge == via:
+                    continue
+                if order[nxt] == -1:
+                    order[nxt] = low[nxt] = counter
+                    counter += 1
+                    stack.append((nxt, edge, iter(adjacency[nxt])))
+                    advanced = True
+                    break
+                low[vertex] = min(low[vertex], order[nxt])
+            if not advanced:
+                stack.pop()
+                if stack:
+                    parent = stack[-1][0]
+                    low[parent] = min(low[parent], low[vertex])
+                    if low[vertex] > order[parent]:
+                        bridges += 1
+    return bridges

@@ -169,7 +169,8 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
     if per not in PER_CHOICES:
         raise ParameterError(f"--per {per!r}: use one of {', '.join(PER_CHOICES)}")
     symbolic = bool(ls.variables)
-    raw = {q: [_poly_to_value(p, ls.variables, symbolic) for p in ls.terms[q]] for q in ("lnz", "m2", "m4")}
+    raw = {q: [_poly_to_value(p, ls.variables, symbolic) for p in ls.terms[q]] for q in ("lnz", "m2", "m4")
+           if q in ls.terms}
     # beta^0 of ln Z: sum_c n_c p_c ln(2S+1), per cell
     lnz0 = 0.0 if not symbolic else sympy.Integer(0)
     occupied = Fraction(0) if not symbolic else sympy.Integer(0)
@@ -192,12 +193,18 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
     else:
         lnz0 = sympy.simplify(lnz0 / divisor)
         coefs = {k: [sympy.simplify(c / divisor) for c in v] for k, v in raw.items()}
-    lnz = coefs["lnz"]
+    lnz = coefs.get("lnz")
     order = ls.order
+    if lnz is None:
+        raise ParameterError("the series must include ln Z (quantity 'lnz')")
     energy = [-(n + 1) * lnz[n + 1] for n in range(order)]
     heat = [n * (n - 1) * lnz[n] for n in range(order + 1)]
     entropy = [(1 - n) * lnz[n] for n in range(order + 1)]
-    coefficients = {"lnZ": lnz, "chiT": coefs["m2"], "M4": coefs["m4"], "E": energy, "C": heat, "S": entropy}
+    coefficients = {"lnZ": lnz, "E": energy, "C": heat, "S": entropy}
+    if "m2" in coefs:
+        coefficients["chiT"] = coefs["m2"]
+    if "m4" in coefs:
+        coefficients["M4"] = coefs["m4"]
     couplings = {}
     for label, c in model.couplings.items():
         if c.xy == c.z:

@@ -297,3 +297,18 @@ def test_linked_weights_vanish_below_their_bond_count():
         assert all(c == 0 for c in w["m2"][:n_edges])
         assert all(c == 0 for c in w["lnz"][: n_edges + n_bridges])
         assert any(c != 0 for c in w["m2"][n_edges:])
+
+
+def test_lnz_alone_skips_bridged_graphs_and_agrees_with_the_full_run():
+    # The bridge rule (each bridge appears at least twice in ln Z at h = 0) is an exact statement: asking for
+    # ln Z alone must give the same coefficients while computing fewer cluster series.
+    from hte.expansion import expand_lattice
+    from hte.models import build_model
+
+    spec = load_lattice("kagome")
+    model = build_model(spec)
+    full = expand_lattice(spec, model, 8)
+    alone = expand_lattice(spec, model, 8, quantities=("lnz",))
+    assert alone.terms["lnz"] == full.terms["lnz"]
+    assert "m2" not in alone.terms
+    assert alone.stats["cluster_series_computed"] < full.stats["cluster_series_computed"] / 3

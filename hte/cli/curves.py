@@ -95,6 +95,8 @@ def _series_document(args) -> dict:
         return load_series_document(args.lattice)
     from hte.cli.series import series_from_args
 
+    if args.method == "entropy":
+        args.lnz_only = True  # the entropy method uses ln Z alone
     return series_from_args(args, default_order=12).to_json_dict()
 
 

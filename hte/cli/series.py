@@ -44,6 +44,9 @@ def add_series_arguments(parser) -> None:
     parser.add_argument("--workers", type=int, default=None, help="processes to use (default: all cores)")
     parser.add_argument("--scheduler", default=None, metavar="ADDRESS",
                         help="run the cluster series on a Dask distributed scheduler (e.g. tcp://head:8786)")
+    parser.add_argument("--lnz-only", action="store_true",
+                        help="compute ln Z (and E, C, S) only: graphs whose bridges make them vanish are skipped, "
+                             "much faster at high order")
     parser.add_argument("--no-tables", action="store_true", help="ignore the shipped tables in tables/")
     parser.add_argument("--no-cache", action="store_true", help="do not read or write the weight cache")
 
@@ -88,11 +91,11 @@ def series_from_args(args, *, default_order: int | None = None):
         from hte.cache import WeightCache
 
         cache = WeightCache()
-    from hte.expansion import expand_lattice
+    from hte.expansion import QUANTITIES, expand_lattice
 
     try:
         ls = expand_lattice(spec, model, order, cache=cache, workers=workers, progress=sys.stderr.isatty(),
-                            scheduler=args.scheduler)
+                            scheduler=args.scheduler, quantities=("lnz",) if args.lnz_only else QUANTITIES)
     finally:
         if cache is not None:
             cache.close()
