@@ -226,13 +226,20 @@ class LabModel:
                                          "fitted temperature or fix it")
         return shifted
 
-    def background_heat_capacity(self, temperature, field_tesla, values) -> np.ndarray:
-        """Impurity Schottky (Zeeman multiplet in each point's field) plus the lattice part, J/(mol K)."""
-        from hte.backgrounds import debye_heat_capacity, zeeman_schottky
+    def lattice_heat_capacity(self, temperature, values) -> np.ndarray:
+        """Lattice (phonon) part: Debye term (if debye_atoms > 0) + lattice_beta T^3 + lattice_delta T^5, J/(mol K)."""
+        from hte.backgrounds import debye_heat_capacity
 
         total = values["lattice_beta"] * temperature ** 3 + values["lattice_delta"] * temperature ** 5
         if values["debye_atoms"] > 0:
             total = total + debye_heat_capacity(temperature, values["theta_D"], values["debye_atoms"])
+        return np.asarray(total, dtype=float)
+
+    def background_heat_capacity(self, temperature, field_tesla, values) -> np.ndarray:
+        """Impurity Schottky (Zeeman multiplet in each point's field) plus the lattice part, J/(mol K)."""
+        from hte.backgrounds import zeeman_schottky
+
+        total = self.lattice_heat_capacity(temperature, values).copy()
         if values["imp_fraction"] != 0:
             for b in np.unique(field_tesla):
                 if b != 0:

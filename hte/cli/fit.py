@@ -472,13 +472,15 @@ def write_csv(result, path) -> None:
         writer.writerows(rows)
 
 
-_LABELS = {"chi": ("chi (emu/mol)", "T (K)"), "C": ("C (J/(mol K))", "T (K)"), "M": ("M (mu_B/f.u.)", None)}
+_LABELS = {"chi": ("chi (emu/mol)", "T (K)"), "C": ("C - C_lattice (fitted), J/(mol K)", "T (K)"),
+           "M": ("M (mu_B/f.u.)", None)}
 
 
 def plot_fit(result, path) -> None:
     """Data with the model and its band (above), normalised residuals (below), one column per quantity, and the
     correlation matrix of the free parameters.  Fitted points are filled, the others open; the model is solid
-    inside the window and dashed below it."""
+    inside the window and dashed below it.  Heat capacity is drawn with the fitted lattice part subtracted from
+    data and model alike, so that the magnetic part (and impurity Schottky) can be seen."""
     import numpy as np
     from matplotlib.figure import Figure
 
@@ -530,8 +532,6 @@ def _plot_dataset(result, d, top, bottom, colour) -> None:
     used = d.used if d.used is not None else np.zeros(len(m), dtype=bool)
     fields = sorted({float(b) for b in d.fields})
     label = f"{Path(m.source).name}" + (f" ({fields[0]:g} T)" if len(fields) == 1 else "")
-    top.plot(x[used], m.value[used], "o", ms=3, color=colour, label=label)
-    top.plot(x[~used], m.value[~used], "o", ms=3, mfc="none", color=colour, alpha=0.6)
     if sweep:
         grid_x = np.linspace(x.min(), x.max(), 200)
         temperatures, grid_fields = np.full_like(grid_x, m.temperature[0]), grid_x
@@ -539,6 +539,13 @@ def _plot_dataset(result, d, top, bottom, colour) -> None:
         grid_x = np.geomspace(max(x.min(), 1e-3), x.max(), 200)
         temperatures, grid_fields = grid_x, np.full_like(grid_x, float(np.median(d.fields)))
     model, lower, upper = result.model_band(m.quantity, temperatures, grid_fields)
+    values = m.value
+    if m.quantity == "C":
+        lattice = result.lab.lattice_heat_capacity(temperatures, result.values())
+        model, lower, upper = model - lattice, lower - lattice, upper - lattice
+        values = m.value - result.lab.lattice_heat_capacity(m.temperature, result.values())
+    top.plot(x[used], values[used], "o", ms=3, color=colour, label=label)
+    top.plot(x[~used], values[~used], "o", ms=3, mfc="none", color=colour, alpha=0.6)
     inside = temperatures >= d.t_min if not sweep else np.ones_like(grid_x, dtype=bool)
     with np.errstate(invalid="ignore"):
         top.fill_between(grid_x[inside], lower[inside], upper[inside], color=colour, alpha=0.2, lw=0)
