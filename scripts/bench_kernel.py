@@ -3,7 +3,7 @@
 Usage: .venv/bin/python scripts/bench_kernel.py [--order 12] [--sizes 8-13] [--dense-max 12] [--repeat 1]
 
 Prints one table row per graph: sites, bonds, time of hte.exact.cluster_cumulants (after one warm-up call that
-compiles the numba kernel), time of hte.exact.dense_cumulants_float (for N <= --dense-max), their ratio, and the
+compiles the numba kernel and loads the symmetry search), time of hte.exact.dense_cumulants_float (for N <= --dense-max), their ratio, and the
 largest difference between the two over all lnz, m2, m4 coefficients: relative where the exact coefficient is
 nonzero, absolute where it is zero.  Runs sequentially in one process; the kernel is single-threaded, the dense
 reference uses numpy's BLAS threads (set OPENBLAS_NUM_THREADS=1 for a one-core comparison).
@@ -64,7 +64,7 @@ def main(argv=None) -> None:
     parser.add_argument("--repeat", type=int, default=1, help="take the best of this many runs")
     args = parser.parse_args(argv)
 
-    cluster_cumulants(heisenberg(3, ring_edges(3)), args.order)  # compile (or load) the numba kernel
+    cluster_cumulants(heisenberg(8, ring_edges(8)), args.order)  # compile (or load) the kernel, import networkx
     print(f"S = 1/2 Heisenberg, order {args.order}; times in seconds")
     print(f"{'graph':<8}{'N':>4}{'bonds':>7}{'exact':>10}{'dense':>10}{'speed-up':>10}{'rel diff':>10}{'abs diff':>10}")
     for n_sites in args.sizes:
