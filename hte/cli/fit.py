@@ -45,7 +45,8 @@ def add_arguments(parser) -> None:
                         help="unit of the couplings on input and output (default K)")
     parser.add_argument("--convention", default="J", choices=("J", "-J", "2J", "-2J", "sigma"),
                         help="Hamiltonian convention of the couplings: J: H = J sum S.S (ours, default); "
-                             "2J: H = 2J sum S.S; -2J: H = -2J sum S.S; -J; sigma: H = J sum sigma.sigma")
+                             "2J: H = 2J sum S.S; -2J: H = -2J sum S.S; -J; sigma: H = J sum sigma.sigma. "
+                             "Write a leading minus with '=': --convention=-2J")
     parser.add_argument("--n-magnetic", type=float, default=1.0,
                         help="host magnetic ions (sites of class 'magnetic') per formula unit (default 1)")
     parser.add_argument("--molar-mass", type=float, default=None, help="g per mole of formula units (per-mass units)")
@@ -66,6 +67,8 @@ def add_arguments(parser) -> None:
                         help="fit only T >= MARGIN x the model's convergence temperature (default 1.1)")
     parser.add_argument("--tolerance", type=float, default=0.01,
                         help="relative band half-width defining the convergence temperature (default 0.01)")
+    parser.add_argument("--max-evaluations", type=int, default=3000,
+                        help="model evaluations allowed per fit round before the fit counts as not converged")
     parser.add_argument("--json", metavar="REPORT", default=None, help="write the JSON report")
     parser.add_argument("--png", metavar="FIGURE", default=None, help="figure: data, model and band, residuals, "
                         "correlations (.png, .svg or .pdf)")
@@ -359,7 +362,8 @@ def run(args) -> int:
         raise ParameterError(f"without susceptibility data the start value of {reference} cannot be estimated; "
                              f"give --start {reference}=VALUE ({args.energy_unit}, convention {args.convention})")
 
-    result = fit(lab, measurements, parameters, margin=args.margin, tolerance=args.tolerance)
+    result = fit(lab, measurements, parameters, margin=args.margin, tolerance=args.tolerance,
+                 max_evaluations=args.max_evaluations)
     result.warnings.extend(notes)
     entropy = entropy_check(result) if "C" in quantities else []
     if entropy:
