@@ -10,23 +10,77 @@ isomorphism-invariant data, so isomorphic graphs get identical certificates and 
 (the certificate determines the graph).  It is deterministic across runs and machines, and so keys the weight
 cache.
 
+Automorphism pruning skips only subtrees that an automorphism maps onto an already explored subtree, so the
+set of certificates met, hence the canonical form, is that of the full search tree; the returned labelling is
+that of the first smallest leaf in search order, as without pruning.  Two prunings are used [1]: when a leaf
+has the certificate of an earlier leaf, the map between the two labellings is an automorphism that fixes the
+common path and maps the earlier branch onto the current one, so the search returns to where the two paths
+part; and at each node a vertex is skipped when an automorphism found so far that fixes the node's path
+pointwise maps an earlier vertex of the target cell onto it.
+
 This is the only module that knows how labelling works; the rest of hte uses :func:`canonical_key` and
-:func:`canonical_graph`.
+:func:`canonical_graph`.  Compiled callers that classify many graphs allocate one
+:class:`CanonicalWorkspace` with :func:`new_workspace`, write each graph into the views of
+:func:`workspace_inputs` and call :func:`canonical_into`.
 
 References
 ----------
 .. [1] B. D. McKay and A. Piperno, "Practical graph isomorphism, II", J. Symb. Comput. 60, 94 (2014)
-   (the individualisation–refinement paradigm; no automorphism pruning is done here).
+   (the individualisation–refinement paradigm and automorphism pruning).
 """
 
 from __future__ import annotations
+
+from collections import namedtuple
 
 import numpy as np
 from numba import njit
 
 from hte.graph import ColouredGraph
 
-_MASK = np.uint64(0xFFFFFFFFFFFFFFFF)
+CanonicalWorkspace = namedtuple("CanonicalWorkspace", ["vectors", "matrix", "hash_key"])
+"""Preallocated buffers of :func:`canonical_into` for graphs of up to N vertices and M edges.
+
+``vectors`` is int64[rows, W] with one row per buffer named by the ``_ROW`` constants below (the input graph,
+neighbour lists, sort buffers, the search stack, certificates, paths and labellings); ``matrix`` is
+int64[4N + 1, N] holding the coloured adjacency matrix (rows 0..N-1), the partition at each search depth
+(rows N..2N) and the automorphisms found (rows 2N+1..4N); ``hash_key`` is uint64[N].  Few arrays, because
+each array passed to a compiled function costs a reference-count update per call.
+"""
+
+# rows of CanonicalWorkspace.vectors
+_VCOL, _EU, _EV, _ECOL = 0, 1, 2, 3              # the input graph: vertex colours, edge ends and colours
+_PTR, _NBR, _COL = 4, 5, 6                       # CSR neighbour lists (offsets, neighbours, edge colours)
+_ORDER, _SCRATCH = 7, 8                          # vertices sorted by cell; counting sort and inverse maps
+_NCELLS, _TARGET, _NEXT, _PATH = 9, 10, 11, 12   # per depth: number of cells, target cell, next vertex to
+                                                 # try (-1 = node not expanded), vertex individualised
+_CAND, _BEST, _FIRST = 13, 14, 15                # certificates: current leaf, smallest so far, first leaf
+_BEST_LABELS, _BEST_PATH = 16, 17                # labelling and path of the smallest leaf
+_FIRST_LABELS, _FIRST_PATH = 18, 19              # labelling and path of the first leaf
+_ORBIT = 20                                      # union-find forest of orbits
+_N_ROWS = 21
+
+
+@njit(cache=True)
+def new_workspace(max_vertices, max_edges):
+    """A :class:`CanonicalWorkspace` for graphs with at most `max_vertices` vertices and `max_edges` edges."""
+    n = max(max_vertices, 1)
+    width = max(1 + n + n * (n - 1) // 2, 2 * max_edges, n + 1)
+    return CanonicalWorkspace(np.zeros((_N_ROWS, width), np.int64), np.zeros((4 * n + 1, n), np.int64),
+                              np.zeros(n, np.uint64))
+
+
+@njit(cache=True)
+def workspace_inputs(ws):
+    """Views (vertex colours, edge ends u, v, edge colours) into which a caller writes the input graph."""
+    vectors = ws.vectors
+    return vectors[_VCOL], vectors[_EU], vectors[_EV], vectors[_ECOL]
+
+
+@njit(cache=True)
+def workspace_result(ws):
+    """Views (certificate, labelling) of the last result; the first L and n entries are valid."""
+    return ws.vectors[_BEST], ws.vectors[_BEST_LABELS]
 
 
 @njit(cache=True, inline="always")
@@ -38,84 +92,301 @@ def _mix(x):
     return x ^ (x >> np.uint64(31))
 
 
-@njit(cache=True)
-def _rank(keys_hi, keys_lo, out):
-    """out[v] = index of (keys_hi[v], keys_lo[v]) among the sorted distinct keys; returns the number of cells."""
-    n = keys_hi.shape[0]
-    order = np.arange(n)
-    # insertion sort: n is small (<= ~30)
-    for i in range(1, n):
+@njit(cache=True, inline="always")
+def _load_graph(vec, adjacency, n, m):
+    """Fill the adjacency matrix and the CSR neighbour lists from the input rows."""
+    for i in range(n):
+        for j in range(n):
+            adjacency[i, j] = 0
+    for v in range(n + 1):
+        vec[_PTR, v] = 0
+    for e in range(m):
+        a = vec[_EU, e]
+        b = vec[_EV, e]
+        adjacency[a, b] = vec[_ECOL, e] + 1
+        adjacency[b, a] = vec[_ECOL, e] + 1
+        vec[_PTR, a + 1] += 1
+        vec[_PTR, b + 1] += 1
+    for v in range(n):
+        vec[_PTR, v + 1] += vec[_PTR, v]
+        vec[_SCRATCH, v] = vec[_PTR, v]
+    for e in range(m):
+        a = vec[_EU, e]
+        b = vec[_EV, e]
+        vec[_NBR, vec[_SCRATCH, a]] = b
+        vec[_COL, vec[_SCRATCH, a]] = vec[_ECOL, e]
+        vec[_SCRATCH, a] += 1
+        vec[_NBR, vec[_SCRATCH, b]] = a
+        vec[_COL, vec[_SCRATCH, b]] = vec[_ECOL, e]
+        vec[_SCRATCH, b] += 1
+
+
+@njit(cache=True, inline="always")
+def _colour_cells(vec, mat, row, n):
+    """mat[row, v] = rank of the colour of v among the distinct vertex colours; returns the number of cells."""
+    for i in range(n):  # insertion sort by colour: n is small
+        a = i
         j = i
-        while j > 0:
-            a = order[j - 1]
-            b = order[j]
-            if keys_hi[a] > keys_hi[b] or (keys_hi[a] == keys_hi[b] and keys_lo[a] > keys_lo[b]):
-                order[j - 1] = b
-                order[j] = a
-                j -= 1
-            else:
-                break
+        while j > 0 and vec[_VCOL, vec[_ORDER, j - 1]] > vec[_VCOL, a]:
+            vec[_ORDER, j] = vec[_ORDER, j - 1]
+            j -= 1
+        vec[_ORDER, j] = a
     cell = 0
-    out[order[0]] = 0
+    mat[row, vec[_ORDER, 0]] = 0
     for i in range(1, n):
-        a = order[i - 1]
-        b = order[i]
-        if keys_hi[a] != keys_hi[b] or keys_lo[a] != keys_lo[b]:
+        if vec[_VCOL, vec[_ORDER, i]] != vec[_VCOL, vec[_ORDER, i - 1]]:
             cell += 1
-        out[b] = cell
+        mat[row, vec[_ORDER, i]] = cell
     return cell + 1
 
 
-@njit(cache=True)
-def _refine(cells, n_cells, adj_ptr, adj_nbr, adj_col):
-    """Refine `cells` (in place) to a stable partition; returns the number of cells."""
-    n = cells.shape[0]
-    hi = np.empty(n, np.int64)
-    lo = np.empty(n, np.uint64)
-    new = np.empty(n, np.int64)
-    while True:
+@njit(cache=True, inline="always")
+def _refine(vec, mat, key, row, n, n_cells):
+    """Refine the partition mat[row, :n] (cell of each vertex) in place to the stable one; returns its size.
+
+    Each round gives every vertex the hash sum of mix(cell(u) * 1000003 + colour(v, u) + 1) over its
+    neighbours u and ranks the vertices by (cell, hash sum); it stops when no cell splits.  Only the ranks
+    enter the result, so vertices in singleton cells need no hash.
+    """
+    while n_cells < n:
+        # counting sort by cell: afterwards vec[_SCRATCH, c] is the end of cell c in vec[_ORDER]
+        for c in range(n_cells + 1):
+            vec[_SCRATCH, c] = 0
         for v in range(n):
-            acc = np.uint64(0)
-            for p in range(adj_ptr[v], adj_ptr[v + 1]):
-                u = adj_nbr[p]
-                acc += _mix(np.uint64(cells[u]) * np.uint64(1000003) + np.uint64(adj_col[p]) + np.uint64(1))
-            hi[v] = cells[v]
-            lo[v] = acc
-        m = _rank(hi, lo, new)
-        if m == n_cells:
-            return n_cells
+            vec[_SCRATCH, mat[row, v] + 1] += 1
+        for c in range(n_cells):
+            vec[_SCRATCH, c + 1] += vec[_SCRATCH, c]
         for v in range(n):
-            cells[v] = new[v]
-        n_cells = m
-        if n_cells == n:
+            c = mat[row, v]
+            vec[_ORDER, vec[_SCRATCH, c]] = v
+            vec[_SCRATCH, c] += 1
+        # hash and sort the vertices of each non-singleton cell
+        new_cells = 0
+        lo = 0
+        for c in range(n_cells):
+            hi = vec[_SCRATCH, c]
+            if hi - lo > 1:
+                for i in range(lo, hi):
+                    v = vec[_ORDER, i]
+                    acc = np.uint64(0)
+                    for p in range(vec[_PTR, v], vec[_PTR, v + 1]):
+                        acc += _mix(np.uint64(mat[row, vec[_NBR, p]]) * np.uint64(1000003)
+                                    + np.uint64(vec[_COL, p]) + np.uint64(1))
+                    key[v] = acc
+                for i in range(lo + 1, hi):
+                    a = vec[_ORDER, i]
+                    j = i
+                    while j > lo and key[vec[_ORDER, j - 1]] > key[a]:
+                        vec[_ORDER, j] = vec[_ORDER, j - 1]
+                        j -= 1
+                    vec[_ORDER, j] = a
+                new_cells += 1
+                for i in range(lo + 1, hi):
+                    if key[vec[_ORDER, i]] != key[vec[_ORDER, i - 1]]:
+                        new_cells += 1
+            else:
+                new_cells += 1
+            lo = hi
+        if new_cells == n_cells:
             return n_cells
+        # renumber the cells in (old cell, hash) order
+        cell = -1
+        lo = 0
+        for c in range(n_cells):
+            hi = vec[_SCRATCH, c]
+            cell += 1
+            mat[row, vec[_ORDER, lo]] = cell
+            for i in range(lo + 1, hi):
+                if key[vec[_ORDER, i]] != key[vec[_ORDER, i - 1]]:
+                    cell += 1
+                mat[row, vec[_ORDER, i]] = cell
+            lo = hi
+        n_cells = new_cells
+    return n_cells
 
 
-@njit(cache=True)
-def _certificate(cells, vcol, adjm, out):
-    """Write the certificate of the discrete partition `cells` (a labelling) into `out`."""
-    n = cells.shape[0]
-    inv = np.empty(n, np.int64)
+@njit(cache=True, inline="always")
+def _write_certificate(vec, mat, row, n, out):
+    """Write the certificate of the discrete partition mat[row, :n] (a labelling) into vec[out, :L]."""
     for v in range(n):
-        inv[cells[v]] = v
-    k = 0
-    out[k] = n
-    k += 1
+        vec[_SCRATCH, mat[row, v]] = v
+    vec[out, 0] = n
+    k = 1
     for i in range(n):
-        out[k] = vcol[inv[i]]
+        vec[out, k] = vec[_VCOL, vec[_SCRATCH, i]]
         k += 1
     for i in range(n):
+        a = vec[_SCRATCH, i]
         for j in range(i + 1, n):
-            out[k] = adjm[inv[i], inv[j]]
+            vec[out, k] = mat[a, vec[_SCRATCH, j]]
             k += 1
 
 
+@njit(cache=True, inline="always")
+def _compare(vec, a, b, length):
+    """-1, 0 or 1 as the certificate in row a is lexicographically below, equal to or above the one in row b."""
+    for i in range(length):
+        x = vec[a, i]
+        y = vec[b, i]
+        if x != y:
+            return -1 if x < y else 1
+    return 0
+
+
+@njit(cache=True, inline="always")
+def _store_leaf(vec, mat, row, depth, n, length, cert_row, labels_row, path_row):
+    """Copy the certificate, labelling and path of the current leaf into the given rows."""
+    for i in range(length):
+        vec[cert_row, i] = vec[_CAND, i]
+    for v in range(n):
+        vec[labels_row, v] = mat[row, v]
+    for i in range(depth):
+        vec[path_row, i] = vec[_PATH, i]
+
+
+@njit(cache=True, inline="always")
+def _find(vec, v):
+    while vec[_ORBIT, v] != v:
+        vec[_ORBIT, v] = vec[_ORBIT, vec[_ORBIT, v]]
+        v = vec[_ORBIT, v]
+    return v
+
+
 @njit(cache=True)
-def _less(a, b):
-    for i in range(a.shape[0]):
-        if a[i] != b[i]:
-            return a[i] < b[i]
+def _pruned(vec, mat, row, n, depth, n_generators, generator_row, t, v):
+    """True if an automorphism found so far that fixes the path to `depth` maps a vertex u < v of cell t onto v."""
+    for u in range(n):
+        vec[_ORBIT, u] = u
+    for g in range(generator_row, generator_row + n_generators):
+        fixes = True
+        for i in range(depth):
+            if mat[g, vec[_PATH, i]] != vec[_PATH, i]:
+                fixes = False
+                break
+        if fixes:
+            for u in range(n):
+                a = _find(vec, u)
+                b = _find(vec, mat[g, u])
+                if a != b:
+                    vec[_ORBIT, max(a, b)] = min(a, b)
+    root = _find(vec, v)
+    for u in range(v):
+        if mat[row, u] == t and _find(vec, u) == root:
+            return True
     return False
+
+
+@njit(cache=True)
+def canonical_into(ws, n, m):
+    """Canonical certificate of the coloured graph written into the workspace inputs.
+
+    Parameters
+    ----------
+    ws : CanonicalWorkspace
+        From :func:`new_workspace`, large enough for the graph; the caller has written the vertex colours and
+        the edges into the views of :func:`workspace_inputs`.
+    n, m : int
+        Number of vertices and of edges of the input graph.
+
+    Returns
+    -------
+    int
+        The certificate length L = 1 + n + n(n-1)/2.  The certificate and the canonical labelling are the
+        first L and n entries of the views of :func:`workspace_result`, valid until the next call.
+    """
+    vec, mat, key = ws.vectors, ws.matrix, ws.hash_key
+    length = 1 + n + n * (n - 1) // 2
+    if n == 0:
+        vec[_BEST, 0] = 0
+        return length
+    stack = mat.shape[1]           # row of the partition at depth d: stack + d
+    generator_row = 2 * stack + 1  # first row of the automorphisms
+    max_generators = mat.shape[0] - generator_row
+    _load_graph(vec, mat, n, m)
+    n_cells = _colour_cells(vec, mat, stack, n)
+    n_cells = _refine(vec, mat, key, stack, n, n_cells)
+    if n_cells == n:  # discrete at the root: a single leaf
+        _write_certificate(vec, mat, stack, n, _BEST)
+        for v in range(n):
+            vec[_BEST_LABELS, v] = mat[stack, v]
+        return length
+
+    n_generators = 0
+    have_leaf = False
+    best_depth = 0
+    first_depth = 0
+    vec[_NCELLS, 0] = n_cells
+    vec[_NEXT, 0] = -1
+    depth = 0
+    while depth >= 0:
+        row = stack + depth
+        if vec[_NCELLS, depth] == n:
+            _write_certificate(vec, mat, row, n, _CAND)
+            if not have_leaf:
+                have_leaf = True
+                _store_leaf(vec, mat, row, depth, n, length, _BEST, _BEST_LABELS, _BEST_PATH)
+                _store_leaf(vec, mat, row, depth, n, length, _FIRST, _FIRST_LABELS, _FIRST_PATH)
+                best_depth = depth
+                first_depth = depth
+                depth -= 1
+                continue
+            order = _compare(vec, _CAND, _BEST, length)
+            if order < 0:
+                _store_leaf(vec, mat, row, depth, n, length, _BEST, _BEST_LABELS, _BEST_PATH)
+                best_depth = depth
+                depth -= 1
+                continue
+            if order == 0:
+                twin_labels, twin_path, twin_depth = _BEST_LABELS, _BEST_PATH, best_depth
+            elif _compare(vec, _CAND, _FIRST, length) == 0:
+                twin_labels, twin_path, twin_depth = _FIRST_LABELS, _FIRST_PATH, first_depth
+            else:
+                depth -= 1
+                continue
+            # an automorphism: vertex of label L at the earlier leaf -> vertex of label L here
+            if n_generators < max_generators:
+                g = generator_row + n_generators
+                for v in range(n):
+                    vec[_SCRATCH, mat[row, v]] = v
+                for v in range(n):
+                    mat[g, v] = vec[_SCRATCH, vec[twin_labels, v]]
+                n_generators += 1
+            # it fixes the common path and maps the earlier branch onto this one: resume where they part
+            split = 0
+            while split < depth and split < twin_depth and vec[_PATH, split] == vec[twin_path, split]:
+                split += 1
+            depth = split
+            continue
+        if vec[_NEXT, depth] == -1:
+            # target: the first non-singleton cell (smallest cell id with two or more vertices)
+            for c in range(n):
+                vec[_SCRATCH, c] = 0
+            for v in range(n):
+                vec[_SCRATCH, mat[row, v]] += 1
+            t = 0
+            while vec[_SCRATCH, t] < 2:
+                t += 1
+            vec[_TARGET, depth] = t
+            vec[_NEXT, depth] = 0
+        t = vec[_TARGET, depth]
+        v = vec[_NEXT, depth]
+        while v < n and (mat[row, v] != t or (
+                n_generators > 0 and _pruned(vec, mat, row, n, depth, n_generators, generator_row, t, v))):
+            v += 1
+        if v >= n:
+            depth -= 1
+            continue
+        vec[_NEXT, depth] = v + 1
+        vec[_PATH, depth] = v
+        # individualise v: it goes in front of the rest of its cell; later cells shift by one
+        for u in range(n):
+            c = mat[row, u]
+            mat[row + 1, u] = c if c < t else c + 1
+        mat[row + 1, v] = t
+        vec[_NCELLS, depth + 1] = _refine(vec, mat, key, row + 1, n, vec[_NCELLS, depth] + 1)
+        depth += 1
+        vec[_NEXT, depth] = -1
+    return length
 
 
 @njit(cache=True)
@@ -125,7 +396,7 @@ def canonical_certificate(n, vcol, eu, ev, ecol):
     Parameters
     ----------
     n : int
-        Number of vertices (>= 1).
+        Number of vertices (>= 0).
     vcol : int64[n]
         Vertex colours (>= 0).
     eu, ev, ecol : int64[m]
@@ -139,89 +410,15 @@ def canonical_certificate(n, vcol, eu, ev, ecol):
         labels[v] = canonical label of input vertex v.
     """
     m = eu.shape[0]
-    adjm = np.zeros((n, n), np.int64)
-    deg = np.zeros(n + 1, np.int64)
-    for e in range(m):
-        adjm[eu[e], ev[e]] = ecol[e] + 1
-        adjm[ev[e], eu[e]] = ecol[e] + 1
-        deg[eu[e] + 1] += 1
-        deg[ev[e] + 1] += 1
-    adj_ptr = np.cumsum(deg)
-    adj_nbr = np.empty(2 * m, np.int64)
-    adj_col = np.empty(2 * m, np.int64)
-    fill = adj_ptr[:-1].copy()
-    for e in range(m):
-        a, b = eu[e], ev[e]
-        adj_nbr[fill[a]] = b
-        adj_col[fill[a]] = ecol[e]
-        fill[a] += 1
-        adj_nbr[fill[b]] = a
-        adj_col[fill[b]] = ecol[e]
-        fill[b] += 1
-
-    L = 1 + n + n * (n - 1) // 2
-    best = np.empty(L, np.int64)
-    cand = np.empty(L, np.int64)
-    best_labels = np.zeros(n, np.int64)
-    have_best = False
-
-    # search stack: partitions per depth and the position in the target cell being tried
-    stack_cells = np.empty((n + 1, n), np.int64)
-    stack_ncells = np.empty(n + 1, np.int64)
-    stack_target = np.empty(n + 1, np.int64)  # target cell id
-    stack_next = np.empty(n + 1, np.int64)  # next vertex index to try (scan position over 0..n-1)
-
-    hi = np.empty(n, np.int64)
-    lo = np.zeros(n, np.uint64)
-    cells0 = np.empty(n, np.int64)
-    for v in range(n):
-        hi[v] = vcol[v]
-    nc = _rank(hi, lo, cells0)
-    nc = _refine(cells0, nc, adj_ptr, adj_nbr, adj_col)
-    stack_cells[0, :] = cells0
-    stack_ncells[0] = nc
-    depth = 0
-    stack_next[0] = -1  # marker: node not yet expanded
-    work = np.empty(n, np.int64)
-    while depth >= 0:
-        cells = stack_cells[depth]
-        if stack_ncells[depth] == n:
-            _certificate(cells, vcol, adjm, cand)
-            if (not have_best) or _less(cand, best):
-                best[:] = cand
-                best_labels[:] = cells
-                have_best = True
-            depth -= 1
-            continue
-        if stack_next[depth] == -1:
-            # choose the first non-singleton cell (smallest cell id with size > 1)
-            size = np.zeros(n, np.int64)
-            for v in range(n):
-                size[cells[v]] += 1
-            t = 0
-            while size[t] < 2:
-                t += 1
-            stack_target[depth] = t
-            stack_next[depth] = 0
-        t = stack_target[depth]
-        v = stack_next[depth]
-        while v < n and cells[v] != t:
-            v += 1
-        if v >= n:
-            depth -= 1
-            continue
-        stack_next[depth] = v + 1
-        # individualise v: it precedes the rest of its cell
-        for u in range(n):
-            hi[u] = 2 * cells[u] + (0 if u == v else 1)
-            lo[u] = 0
-        c = _rank(hi, lo, work)
-        c = _refine(work, c, adj_ptr, adj_nbr, adj_col)
-        depth += 1
-        stack_cells[depth, :] = work
-        stack_ncells[depth] = c
-        stack_next[depth] = -1
-    return best, best_labels
+    ws = new_workspace(n, m)
+    colours, ends_u, ends_v, edge_colours = workspace_inputs(ws)
+    colours[:n] = vcol
+    ends_u[:m] = eu
+    ends_v[:m] = ev
+    edge_colours[:m] = ecol
+    length = canonical_into(ws, n, m)
+    cert, labels = workspace_result(ws)
+    return cert[:length].copy(), labels[:n].copy()
 
 
 def _arrays(graph: ColouredGraph):

@@ -19,7 +19,7 @@ import numpy as np
 from numba import njit, types
 from numba.typed import Dict, List
 
-from hte.canonical import canonical_certificate
+from hte.canonical import canonical_into, new_workspace, workspace_inputs, workspace_result
 
 
 @njit(cache=True)
@@ -87,10 +87,9 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     seg_end = np.empty(max_bonds + 2, np.int64)
     seg_pos = np.empty(max_bonds + 2, np.int64)
     seg_new = np.empty(max_bonds + 2, np.int64)
-    vcol = np.empty(max_bonds + 2, np.int64)
-    eu = np.empty(max_bonds + 1, np.int64)
-    ev = np.empty(max_bonds + 1, np.int64)
-    ec = np.empty(max_bonds + 1, np.int64)
+    ws = new_workspace(max_bonds + 1, max_bonds)
+    vcol, eu, ev, ec = workspace_inputs(ws)
+    best, _ = workspace_result(ws)
 
     table = Dict.empty(key_type=types.int64, value_type=types.int64)
     certs = List()
@@ -151,8 +150,8 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                     eu[k] = z
                     ev[k] = a
                 ec[k] = bond_col[c]
-            cert, _ = canonical_certificate(nv, vcol[:nv], eu[:size], ev[:size], ec[:size])
-            _classify(cert, table, certs, counts)
+            length = canonical_into(ws, nv, size)
+            _classify(best[:length], table, certs, counts)
             per_size[size] += 1
             if size < max_bonds:
                 ns = seg_end[d]
