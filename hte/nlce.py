@@ -364,6 +364,11 @@ def nlce_curves(lattice, model, max_bonds: int, temperatures, *, per: str = "sit
     check_cluster_size(max_bonds, max(int(2 * model.spin[c]) for c in bonded), memory_limit, max(1, workers))
 
     start = time.perf_counter()
+    if census is not None and (census.lattice, census.site_classes, census.labels) != (
+            spec.name, tuple(spec.site_classes), tuple(spec.labels)):
+        raise ParameterError(f"census of {census.lattice!r} with labels {', '.join(census.labels)} does not match "
+                             f"{spec.name!r} with the nonzero labels {', '.join(spec.labels)}; enumerate the "
+                             "lattice without its zero couplings, or pass census=None")
     if census is None or census.max_bonds < max_bonds:
         census = enumerate_clusters(spec, max_bonds, workers=workers)
     enumeration_s = time.perf_counter() - start
@@ -418,9 +423,11 @@ def nlce_curves(lattice, model, max_bonds: int, temperatures, *, per: str = "sit
         band = Band(centre, np.minimum(stack.min(axis=0), centre), np.maximum(stack.max(axis=0), centre))
         estimates[name], curves[name] = candidates, band
         t_conv[name] = convergence_temperature(grid, band, tolerance)
+    coupling_text = {}
+    for label, (xy, z) in couplings.items():
+        coupling_text.update({label: str(xy)} if xy == z else {f"{label}.xy": str(xy), f"{label}.z": str(z)})
     metadata = {"lattice": lattice.name, "model": model.kind, "spin": {c: str(s) for c, s in model.spin.items()},
-                "couplings": {label: str(xy) if xy == z else f"{xy},{z}" for label, (xy, z) in couplings.items()},
-                "occupation": {c: str(p) for c, p in occupation.items()}, "per": per}
+                "couplings": coupling_text, "occupation": {c: str(p) for c, p in occupation.items()}, "per": per}
     stats = {"enumeration_s": enumeration_s, "graph_classes": classes_per_order,
              "largest_cluster_sites": max(gc.n_sites for gc in census.classes if gc.n_bonds <= max_bonds)}
     return NLCEResult(grid, per, list(range(1, max_bonds + 1)), partial_sums, estimates, curves, t_conv, tolerance,

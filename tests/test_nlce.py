@@ -429,6 +429,9 @@ def test_bad_input_names_the_parameter(chain):
         nlce_curves(lattice, model, 4, [1.0], per="spin")
     with pytest.raises(ParameterError, match="numeric"):
         nlce_curves(lattice, build_model(lattice, symbolic=True), 4, [1.0])
+    square = load_lattice("square")                                 # J2 = 0 by default: its bonds are dropped
+    with pytest.raises(ParameterError, match="does not match 'square' with the nonzero labels J1"):
+        nlce_curves(square, build_model(square), 2, [1.0], census=enumerate_clusters(square, 2))
 
 
 def test_curve_set_adapter_writes_the_curves_json(chain):
