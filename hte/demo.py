@@ -103,36 +103,48 @@ def read_true_parameters(directory: Path = DEMO_DIR) -> dict:
                             "`.venv/bin/python scripts/make_demo_data.py`") from None
 
 
-def read_demo_data(directory: Path = DEMO_DIR) -> list:
-    """The five demo data files as Measurements (T in K, χ in emu/mol, C in J/(mol K), columns T, value, sigma)."""
+def read_demo_data(directory: Path = DEMO_DIR, files=None) -> list:
+    """The demo data files as Measurements (T in K, χ in emu/mol, C in J/(mol K), columns T, value, sigma).
+
+    `files` picks some of :data:`DATA_FILES` by name (default all five).
+    """
+    from hte.errors import ParameterError
     from hte.measured import read_measurement
 
+    known = [entry[0] for entry in DATA_FILES]
+    unknown = [name for name in (files or ()) if name not in known]
+    if unknown:
+        raise ParameterError(f"demo data files {', '.join(unknown)} do not exist; the demo has {', '.join(known)}")
     measurements = []
     for name, quantity, field in DATA_FILES:
+        if files is not None and name not in files:
+            continue
         measurements.append(read_measurement(Path(directory) / name, quantity, uncertainty_column="sigma",
                                              field=field, n_magnetic=COMPOUND["n_magnetic"],
                                              molar_mass=COMPOUND["molar_mass_g_per_mol"]))
     return measurements
 
 
-def demo_parameters(lab, start: dict):
-    """Parameters of the demo fit: :data:`FREE` from `start`, :data:`FIXED` held."""
+def demo_parameters(lab, start: dict, free=FREE):
+    """Parameters of the demo fit: `free` (default :data:`FREE`) from `start`, :data:`FIXED` and the rest held."""
     from hte.fitting import default_parameters
 
     parameters = default_parameters(lab.curves, energy_unit=lab.energy_unit, convention=lab.convention)
     for name, value in {**start, **FIXED}.items():
         parameters[name].value = value
-    for name in FREE:
+    for name in free:
         parameters[name].free = True
     return parameters
 
 
 def run_demo(out_dir, *, order: int | None = None, use_table: bool = True, data_dir: Path = DEMO_DIR,
-             progress: bool | None = None, log=print) -> dict:
+             files=None, free=FREE, start=None, progress: bool | None = None, log=print) -> dict:
     """Run the whole demo, writing figures, CSV and JSON into `out_dir`; return the comparison table as a dict.
 
     Steps: lattice summary and drawing; series; Curie–Weiss on χ at 0.1 T; zero-field curves with bands at
-    the Curie–Weiss start values; the joint fit of all five data sets; recovered against true parameters.
+    the Curie–Weiss start values; the joint fit of the data sets; recovered against true parameters.
+    `files` (names from :data:`DATA_FILES`, the first a χ file), `free` and `start` (extra start values)
+    shorten the job, e.g. for tests.
     """
     from hte.cli.fit import write_outputs
     from hte.cli.lattice import _draw_atomically, summarise
@@ -149,17 +161,17 @@ def run_demo(out_dir, *, order: int | None = None, use_table: bool = True, data_
     log(summarise(lab.curves.lattice))
     _draw_atomically(lab.curves.lattice, out / "lattice.png")
     log(f"\n== {source}")
-    measurements = read_demo_data(data_dir)
+    measurements = read_demo_data(data_dir, files)
     truth = read_true_parameters(data_dir)
 
     log("\n== Curie-Weiss analysis of chi at 0.1 T")
     curie_weiss = fit_curie_weiss(measurements[0])
     log(curie_weiss.report())
     plot_curie_weiss(curie_weiss, measurements[0], out / "curie_weiss.png")
-    start = {"Jd/J1": 0.0, "p_interlayer": 0.05, "chi0": 0.0, "theta_D": 300.0}
-    parameters = demo_parameters(lab, start)
+    start = {"Jd/J1": 0.0, "chi0": 0.0, "theta_D": 300.0, **(start or {})}
+    parameters = demo_parameters(lab, start, free)
     start.update(start_from_curie_weiss(lab, curie_weiss, parameters))
-    parameters = demo_parameters(lab, start)
+    parameters = demo_parameters(lab, start, free)
     log("start values: " + ", ".join(f"{k} = {v:.4g}" for k, v in start.items()))
 
     log("\n== curves with bands at the start values (units of J1)")
@@ -172,7 +184,7 @@ def run_demo(out_dir, *, order: int | None = None, use_table: bool = True, data_
     curve_set.to_csv(out / "curves.csv")
     log(f"T_conv: chi {curve_set.T_conv['chi']:.3g} J1, C {curve_set.T_conv['C']:.3g} J1")
 
-    log("\n== joint fit of chi(0.1 T), chi(7 T), C(0 T), C(4 T), C(9 T)")
+    log("\n== joint fit of " + ", ".join(Path(m.source).name for m in measurements))
     result = fit(lab, measurements, parameters, progress=progress)
     result.extra["entropy"] = entropy_check(result)
     result.extra["curie_weiss"] = {"theta_K": curie_weiss.theta, "C_emu_K_per_mol": curie_weiss.curie,

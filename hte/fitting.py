@@ -592,25 +592,34 @@ def _least_squares(lab, datasets, parameters, free, max_evaluations, progress):
             "give better start values (--start), fix poorly determined parameters (--fix), or narrow --bounds")
     if solution.status < 0:
         raise FitDidNotConvergeError(f"the optimiser failed: {solution.message}")
-    solution.jac = _jacobian(residuals, solution.x, solution.fun, lower, upper)
+    solution.jac, solution.rough = _jacobian(residuals, solution.x, solution.fun, lower, upper)
     solution.scales = np.array([scales[n] for n in free])
     return solution, counter["n"]
 
 
-def _jacobian(residuals, x, f0, lower, upper) -> np.ndarray:
-    """Forward-difference Jacobian at the solution, stepping into the feasible side of each bound.
+def _jacobian(residuals, x, f0, lower, upper):
+    """Central-difference Jacobian at the solution (one-sided at a bound), and the columns where it is not smooth.
 
-    (The optimiser's own Jacobian has zero columns for parameters on an active bound.)
+    The optimiser's own Jacobian has zero columns for parameters on an active bound, so it is recomputed here.
+    A column whose forward and backward differences disagree by more than 10 % marks a parameter at which the
+    model jumps (a Padé approximant of the fixed ensemble drops out there): its error is then not reliable.
     """
-    columns = []
+    columns, rough = [], []
     for i in range(x.size):
         step = 1e-6 * max(1.0, abs(x[i]))
-        if x[i] + step > upper[i]:
-            step = -step
-        shifted = x.copy()
-        shifted[i] += step
-        columns.append((residuals(shifted) - f0) / step)
-    return np.column_stack(columns)
+        ahead, behind = x.copy(), x.copy()
+        ahead[i] = min(x[i] + step, upper[i])
+        behind[i] = max(x[i] - step, lower[i])
+        forward = (residuals(ahead) - f0) / (ahead[i] - x[i]) if ahead[i] > x[i] else None
+        backward = (f0 - residuals(behind)) / (x[i] - behind[i]) if behind[i] < x[i] else None
+        if forward is not None and backward is not None:
+            columns.append(0.5 * (forward + backward))
+            scale = np.linalg.norm(forward) + np.linalg.norm(backward)
+            rough.append(bool(np.linalg.norm(forward - backward) > 0.1 * scale + 1e-300))
+        else:
+            columns.append(forward if forward is not None else backward)
+            rough.append(False)
+    return np.column_stack(columns), rough
 
 
 def _describe(values: dict, names) -> str:
@@ -640,6 +649,10 @@ def _result(lab, datasets, parameters, free, solution, evaluations, warnings, ro
     for i, name in enumerate(free):
         p = parameters[name]
         p.stderr = math.inf if name in loose else float(math.sqrt(max(covariance[i, i], 0.0)))
+        if solution.rough[i]:
+            warnings.append(f"the model is not smooth in {name} at the solution (a Padé approximant drops out or "
+                            f"enters there); the error of {name} = {p.stderr:.3g} and the fit near it are not "
+                            "reliable: fix it, narrow its bounds, or change the series order")
         if name in loose:
             warnings.append(f"{name} is not constrained by the data in the fit window (the model barely depends "
                             "on it there); fix it with --fix")
