@@ -269,6 +269,7 @@ class DataSet:
     t_min: float = math.nan
     t_conv_kelvin: float | None = None
     excluded_by_field: int = 0
+    notes: list = field(default_factory=list)
 
     @property
     def quantity(self) -> str:
@@ -298,7 +299,7 @@ def prepare(measurement: Measurement) -> DataSet:
     except DataFileError as exc:
         outliers = []
         notes.append(str(exc))
-    return DataSet(measurement, sigma, weights, outliers)
+    return DataSet(measurement, sigma, weights, outliers, notes=notes)
 
 
 def _window(lab: LabModel, dataset: DataSet, values: dict, margin: float, tolerance: float) -> None:
@@ -453,7 +454,7 @@ class FitResult:
         out = {"file": m.source, "quantity": m.quantity, "points": len(m), "points_used": int(used.sum()),
                "T_min_used": float(m.temperature[used].min()) if used.any() else None,
                "T_conv_model_K": d.t_conv_kelvin, "weights": d.weights, "outliers": d.outliers,
-               "excluded_by_field_expansion": d.excluded_by_field}
+               "excluded_by_field_expansion": d.excluded_by_field, "notes": list(d.notes)}
         fields = sorted({float(b) for b in d.fields})
         out["fields_T"] = fields
         if used.any():
@@ -515,7 +516,11 @@ def fit(lab: LabModel, measurements, parameters: dict, *, margin: float = 1.1, t
     reference = lab.reference
     if reference in free:       # the sign of J1 is kept: the model is singular at J1 = 0
         p = parameters[reference]
-        p.lower, p.upper = (max(p.lower, 0.0), p.upper) if p.value > 0 else (p.lower, min(p.upper, 0.0))
+        if p.value == 0:
+            raise ParameterError(f"start value {reference} = 0: the model needs a nonzero reference coupling; give "
+                                 f"--start {reference}=VALUE with the sign you expect (> 0 antiferromagnetic)")
+        edge = 1e-3 * abs(p.value)
+        p.lower, p.upper = (max(p.lower, edge), p.upper) if p.value > 0 else (p.lower, min(p.upper, -edge))
     datasets = [prepare(m) for m in measurements]
     progress = sys.stderr.isatty() if progress is None else progress
     warnings: list[str] = []

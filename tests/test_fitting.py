@@ -128,6 +128,27 @@ def test_fit_to_ring_diagonalisation_recovers_j_and_g(ring12):
     assert result.points_used == 40
 
 
+def test_magnetisation_curve_from_ring_diagonalisation_recovers_j_and_g(ring12):
+    # M(B) at T = J = 20 K from the 12-site ring in a field (exact, numpy): m = <S^z>/N with Zeeman term
+    # -h S^z, h = g mu_B B / k_B (mu_B/k_B = 0.67171 K/T, CODATA via scipy); M = g m mu_B per formula unit.
+    energies, sz = ring12
+    g, coupling, temperature = 2.0, 20.0, 20.0
+    fields = np.linspace(0.5, 6.0, 23)
+    moments = []
+    for b in fields:
+        h = g * sc.physical_constants["Bohr magneton"][0] / sc.k * b / coupling      # units of J
+        levels = energies - h * sz
+        weights = np.exp(-(levels - levels.min()) * coupling / temperature)
+        moments.append(g * (weights * sz).sum() / weights.sum() / 12)
+    moments = np.array(moments)
+    data = Measurement("M", np.full(fields.size, temperature), moments, sigma=2e-4 * moments, field=fields,
+                       source="ring12M")
+    chain = LabModel(ModelCurves(read_table(TABLES_DIR / "chain-heisenberg-s1_2.json"), load_lattice("chain")))
+    result = fit(chain, [data], parameters_for(chain, ["J1", "g"], J1=15.0, g=2.2), progress=False)
+    assert result.parameters["J1"].value == pytest.approx(coupling, rel=0.01)
+    assert result.parameters["g"].value == pytest.approx(g, rel=0.01)
+
+
 # ------------------------------------------------------------------------------------------------ Curie–Weiss
 
 

@@ -255,7 +255,7 @@ def _model_from_document(path, lattice, free_couplings, free_occupations):
     return ModelCurves(doc, lattice, parameters=tuple(symbols))
 
 
-def configure_parameters(args, lab, measurements, fixed, starts, bounds, vary):
+def configure_parameters(lab, fixed, starts, bounds, vary):
     """Default parameters with the user's fixed values, start values, bounds and free flags (user units)."""
     from hte.errors import ParameterError
     from hte.fitting import Parameter, default_parameters
@@ -330,7 +330,7 @@ def run(args) -> int:
     model = build_model(args, lattice, {**starts, **fixed}, set(vary))
     lab = LabModel(model, spin=spin, n_magnetic=args.n_magnetic, energy_unit=args.energy_unit,
                    convention=args.convention, impurity_spin=impurity_spin)
-    parameters = configure_parameters(args, lab, measurements, fixed, starts, bounds, vary)
+    parameters = configure_parameters(lab, fixed, starts, bounds, vary)
 
     extra, notes = {}, []
     chi_files = [m for m in measurements if m.quantity == "chi"]
