@@ -10,9 +10,7 @@ import pytest
 
 from hte.cli import main
 from hte.fitting import LabModel, default_parameters
-from hte.lattice_file import load_lattice
 from hte.model_curves import ModelCurves
-from hte.tables import TABLES_DIR, read_table
 
 TRUE = {"J1": 50.0, "g": 2.1, "chi0": 1e-4}
 
@@ -20,7 +18,7 @@ TRUE = {"J1": 50.0, "g": 2.1, "chi0": 1e-4}
 @pytest.fixture(scope="module")
 def chain_data(tmp_path_factory):
     """chi(T) of the Heisenberg chain (J = 50 K, g = 2.1, chi0 = 1e-4 emu/mol) with 0.3 % noise, as a CSV file."""
-    lab = LabModel(ModelCurves(read_table(TABLES_DIR / "chain-heisenberg-s1_2.json"), load_lattice("chain")))
+    lab = LabModel(ModelCurves.build("chain", order=12))
     values = {name: p.value for name, p in default_parameters(lab.curves).items()}
     values.update(TRUE)
     temperatures = np.linspace(30.0, 300.0, 60)
@@ -49,7 +47,7 @@ def assert_nothing_written(folder):
 
 
 def test_full_run_writes_report_figure_and_table(chain_data, tmp_path, capsys):
-    code = main(["fit", "chain", "--chi", str(chain_data), "--columns", "sigma=dchi", "--vary", "J,g,chi0",
+    code = main(["fit", "chain", "--order", "12", "--chi", str(chain_data), "--columns", "sigma=dchi", "--vary", "J,g,chi0",
                  "--curie-weiss", "auto", *output_options(tmp_path)])
     assert code == 0
     report = json.loads(outputs(tmp_path)["json"].read_text())
@@ -68,7 +66,7 @@ def test_full_run_writes_report_figure_and_table(chain_data, tmp_path, capsys):
 
 def test_energy_unit_and_convention_on_the_command_line(chain_data, tmp_path):
     # H = -2J sum S.S in cm^-1: J(ours, K) = -2 J'(cm^-1) x 1.4387769 K/cm^-1 (hc/k_B, CODATA 2018).
-    code = main(["fit", "chain", "--chi", str(chain_data), "--columns", "sigma=dchi", "--vary", "J,g,chi0",
+    code = main(["fit", "chain", "--order", "12", "--chi", str(chain_data), "--columns", "sigma=dchi", "--vary", "J,g,chi0",
                  "--energy-unit", "cm-1", "--convention=-2J", "--json", str(tmp_path / "r.json")])
     assert code == 0
     report = json.loads((tmp_path / "r.json").read_text())
@@ -91,7 +89,7 @@ def test_bad_data_file_exits_2_naming_file_and_line(case, tmp_path, capsys):
     text, message = BAD_FILES[case]
     bad = tmp_path / "bad.csv"
     bad.write_text(text)
-    code = main(["fit", "chain", "--chi", str(bad), *output_options(tmp_path)])
+    code = main(["fit", "chain", "--order", "12", "--chi", str(bad), *output_options(tmp_path)])
     error = capsys.readouterr().err
     assert code == 2
     assert error.startswith("hte fit: error: ") and "Traceback" not in error
@@ -103,7 +101,7 @@ def test_bad_data_file_exits_2_naming_file_and_line(case, tmp_path, capsys):
 
 
 def test_units_that_do_not_fit_exit_2(chain_data, tmp_path, capsys):
-    code = main(["fit", "chain", "--chi", str(chain_data), "--units", "chi=J/(mol K)", *output_options(tmp_path)])
+    code = main(["fit", "chain", "--order", "12", "--chi", str(chain_data), "--units", "chi=J/(mol K)", *output_options(tmp_path)])
     error = capsys.readouterr().err
     assert code == 2 and "'J/(mol K)'" in error and "not a susceptibility unit" in error and str(chain_data) in error
     assert_nothing_written(tmp_path)
@@ -113,14 +111,14 @@ def test_window_with_too_few_points_exits_2(tmp_path, capsys):
     # every point below the model's convergence temperature (0.46 J for the order-12 chain, J = 50 K -> 23 K)
     cold = tmp_path / "cold.csv"
     cold.write_text("T,chi\n" + "".join(f"{t},{0.005 + 1e-5 * t}\n" for t in range(5, 20)))
-    code = main(["fit", "chain", "--chi", str(cold), "--start", "J=50", *output_options(tmp_path)])
+    code = main(["fit", "chain", "--order", "12", "--chi", str(cold), "--start", "J=50", *output_options(tmp_path)])
     error = capsys.readouterr().err
     assert code == 2 and f"{cold}: only 0 of 15 points lie above the fit window" in error
     assert_nothing_written(tmp_path)
 
 
 def test_fit_that_does_not_converge_exits_2(chain_data, tmp_path, capsys):
-    code = main(["fit", "chain", "--chi", str(chain_data), "--start", "J=20,g=1.5", "--max-evaluations", "2",
+    code = main(["fit", "chain", "--order", "12", "--chi", str(chain_data), "--start", "J=20,g=1.5", "--max-evaluations", "2",
                  *output_options(tmp_path)])
     error = capsys.readouterr().err
     assert code == 2 and "did not converge within 2 model evaluations" in error
@@ -128,7 +126,7 @@ def test_fit_that_does_not_converge_exits_2(chain_data, tmp_path, capsys):
 
 
 def test_unknown_parameter_and_ratio_spelling_exit_2(chain_data, tmp_path, capsys):
-    assert main(["fit", "chain", "--chi", str(chain_data), "--vary", "J,gg"]) == 2
+    assert main(["fit", "chain", "--order", "12", "--chi", str(chain_data), "--vary", "J,gg"]) == 2
     assert "--vary gg: unknown parameter" in capsys.readouterr().err
     assert main(["fit", "kagome-layered", "--chi", str(chain_data), "--vary", "J,Jd"]) == 2
     assert "write Jd/J1" in capsys.readouterr().err
@@ -142,7 +140,7 @@ def test_failure_while_writing_leaves_no_report(chain_data, tmp_path, monkeypatc
         raise RuntimeError("disk full")
 
     monkeypatch.setattr(cli_fit, "plot_fit", broken)
-    code = main(["fit", "chain", "--chi", str(chain_data), *output_options(tmp_path)])
+    code = main(["fit", "chain", "--order", "12", "--chi", str(chain_data), *output_options(tmp_path)])
     assert code == 1 and "disk full" in capsys.readouterr().err
     assert_nothing_written(tmp_path)
 
@@ -150,5 +148,5 @@ def test_failure_while_writing_leaves_no_report(chain_data, tmp_path, monkeypatc
 def test_heat_capacity_alone_needs_a_start_value(tmp_path, capsys):
     data = tmp_path / "c.csv"
     data.write_text("T,C\n" + "".join(f"{t},{1.0 / t}\n" for t in range(30, 60)))
-    assert main(["fit", "chain", "--heat-capacity", str(data)]) == 2
+    assert main(["fit", "chain", "--order", "12", "--heat-capacity", str(data)]) == 2
     assert "give --start J1=VALUE" in capsys.readouterr().err

@@ -16,7 +16,6 @@ from hte.fitting import FitDidNotConvergeError, LabModel, default_parameters, en
 from hte.lattice_file import builtin_lattices, load_lattice
 from hte.measured import Measurement
 from hte.model_curves import ModelCurves
-from hte.tables import TABLES_DIR, read_table
 
 # N_A mu_B^2 / k_B in emu K/mol (cgs): 0.375 / (g^2 S(S+1)/3) with the handbook Curie constant 0.12505 g^2 S(S+1)
 # per mole of spins -> N_A mu_B^2/k_B = 3 x 0.12505 = 0.37515 emu K/mol; here from CODATA via scipy.
@@ -59,7 +58,7 @@ def ring_thermodynamics(spectrum, temperatures):
 
 @pytest.fixture(scope="module")
 def chain_model():
-    return LabModel(ModelCurves(read_table(TABLES_DIR / "chain-heisenberg-s1_2.json"), load_lattice("chain")))
+    return LabModel(ModelCurves.build("chain", order=12))
 
 
 @pytest.fixture(scope="module")
@@ -114,11 +113,11 @@ def test_round_trips_recover_parameters_with_68_percent_coverage(chain_model):
     assert abs(np.mean(reduced) - 1.0) < 0.1
 
 
-def test_fit_to_ring_diagonalisation_recovers_j_and_g(ring12):
+def test_fit_to_ring_diagonalisation_recovers_j_and_g(ring12, chain_model):
     # Independent route: chi of a 12-site periodic ring by exact diagonalisation (numpy, in this file), equal to
     # the infinite chain at T >= 0.8 J to ~1e-5 (tests/test_model_curves.py), turned into emu/mol with
     # J = 100 K, g = 2.05: chi_mol = chi* N_A g^2 mu_B^2 / (k_B J).
-    chain = LabModel(ModelCurves(read_table(TABLES_DIR / "chain-heisenberg-s1_2.json"), load_lattice("chain")))
+    chain = chain_model
     reduced_t = np.geomspace(0.8, 6.0, 40)
     chi = ring_thermodynamics(ring12, reduced_t)["chi"] * NA_MUB2_OVER_KB * 2.05 ** 2 / 100.0
     data = Measurement("chi", reduced_t * 100.0, chi, sigma=1e-4 * chi, source="ring12")
@@ -128,7 +127,7 @@ def test_fit_to_ring_diagonalisation_recovers_j_and_g(ring12):
     assert result.points_used == 40
 
 
-def test_magnetisation_curve_from_ring_diagonalisation_recovers_j_and_g(ring12):
+def test_magnetisation_curve_from_ring_diagonalisation_recovers_j_and_g(ring12, chain_model):
     # M(B) at T = J = 20 K from the 12-site ring in a field (exact, numpy): m = <S^z>/N with Zeeman term
     # -h S^z, h = g mu_B B / k_B (mu_B/k_B = 0.67171 K/T, CODATA via scipy); M = g m mu_B per formula unit.
     energies, sz = ring12
@@ -143,7 +142,7 @@ def test_magnetisation_curve_from_ring_diagonalisation_recovers_j_and_g(ring12):
     moments = np.array(moments)
     data = Measurement("M", np.full(fields.size, temperature), moments, sigma=2e-4 * moments, field=fields,
                        source="ring12M")
-    chain = LabModel(ModelCurves(read_table(TABLES_DIR / "chain-heisenberg-s1_2.json"), load_lattice("chain")))
+    chain = chain_model
     result = fit(chain, [data], parameters_for(chain, ["J1", "g"], J1=15.0, g=2.2), progress=False)
     assert result.parameters["J1"].value == pytest.approx(coupling, rel=0.01)
     assert result.parameters["g"].value == pytest.approx(g, rel=0.01)
@@ -287,11 +286,11 @@ def test_window_with_too_few_points_names_the_file(chain_model):
         fit(chain_model, [data], parameters_for(chain_model, ["J1", "g"], J1=50.0, g=2.0), progress=False)
 
 
-def test_magnetic_entropy_from_ring_heat_capacity(ring12):
+def test_magnetic_entropy_from_ring_heat_capacity(ring12, chain_model):
     # C(T) of the 12-site ring (J = 20 K) from 0.05 J to 20 J: the integral of C/T plus the series' entropy
     # above 20 J must give R ln 2 - S(T_0), with S(T_0) the ring's own entropy at 0.05 J (exact identity
     # S(T_1) - S(T_0) = int C/T dT; R ln 2 is the entropy of a free spin 1/2 per mole).
-    chain = LabModel(ModelCurves(read_table(TABLES_DIR / "chain-heisenberg-s1_2.json"), load_lattice("chain")))
+    chain = chain_model
     reduced_t = np.geomspace(0.05, 20.0, 400)
     thermo = ring_thermodynamics(ring12, reduced_t)
     gas = sc.R

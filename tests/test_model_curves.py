@@ -9,10 +9,8 @@ import numpy as np
 import pytest
 
 from hte.errors import ParameterError
-from hte.lattice_file import load_lattice
 from hte.model_curves import ModelCurves, curie_weiss_temperature
 from hte.series import compute_series
-from hte.tables import read_table, TABLES_DIR
 
 # ------------------------------------------------------------------------------------------------ reference
 
@@ -57,8 +55,7 @@ def ring_thermodynamics(length: int, temperature: float, field: float = 0.0) -> 
 
 @pytest.fixture(scope="module")
 def chain():
-    doc = read_table(TABLES_DIR / "chain-heisenberg-s1_2.json")
-    return ModelCurves(doc, load_lattice("chain"))
+    return ModelCurves.build("chain", order=12)
 
 
 # ------------------------------------------------------------------------------------------------ tests
