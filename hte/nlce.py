@@ -165,7 +165,7 @@ class LinkedWeights:
         self.valued: dict[str, ValuedGraph] = {}
         self.own: dict[str, np.ndarray] = {}
         self.linked: dict[str, np.ndarray] = {}
-        self.subgraph_memo: dict[str, dict[str, int]] = {}
+        self.relabelled: dict[tuple, str] = {}  # (local subgraph key, palettes) -> valued key; site value -> key
 
     def add(self, vg: ValuedGraph) -> str:
         self.valued.setdefault(vg.key, vg)
@@ -194,24 +194,30 @@ class LinkedWeights:
         w = self.own[key].copy()
         if vg.graph.n_edges >= 1:
             for colour in vg.graph.vertex_colours:
-                w -= self.weight(self.add(site_graph(vg.vertex_values[colour])))
+                w -= self.weight(self.site_key(vg.vertex_values[colour]))
             for sub_key, count in self.subgraphs(vg).items():
                 w -= count * self.weight(sub_key)
         self.linked[key] = w
         return w
 
+    def site_key(self, value) -> str:
+        """Key of the one-site graph with vertex value (S, D)."""
+        if value not in self.relabelled:
+            self.relabelled[value] = self.add(site_graph(value))
+        return self.relabelled[value]
+
     def subgraphs(self, vg: ValuedGraph) -> dict[str, int]:
         """Connected proper subgraphs (>= 1 bond) of `vg` as valued-graph keys -> embedding counts."""
-        if vg.key in self.subgraph_memo:
-            return self.subgraph_memo[vg.key]
         result: dict[str, int] = {}
         for local_key, count in subgraph_counts(vg.graph).items():
-            g = key_to_graph(local_key)
-            sub = make_valued(g.n_vertices, [vg.vertex_values[c] for c in g.vertex_colours],
-                              [(u, v, vg.edge_values[c]) for u, v, c in g.edges])
-            self.add(sub)
-            result[sub.key] = result.get(sub.key, 0) + count
-        self.subgraph_memo[vg.key] = result
+            memo = (local_key, vg.vertex_values, vg.edge_values)
+            if memo not in self.relabelled:
+                g = key_to_graph(local_key)
+                self.relabelled[memo] = self.add(make_valued(
+                    g.n_vertices, [vg.vertex_values[c] for c in g.vertex_colours],
+                    [(u, v, vg.edge_values[c]) for u, v, c in g.edges]))
+            sub_key = self.relabelled[memo]
+            result[sub_key] = result.get(sub_key, 0) + count
         return result
 
 
@@ -385,8 +391,8 @@ def nlce_curves(lattice, model, max_bonds: int, temperatures, *, per: str = "sit
     for name in site_classes:
         n_c = len(spec.sites_of_class(name))
         if n_c and occupation[name]:
-            total += n_c * float(occupation[name]) * book.weight(book.add(site_graph(
-                vertex_value(site_classes.index(name)))))
+            site = book.site_key(vertex_value(site_classes.index(name)))
+            total += n_c * float(occupation[name]) * book.weight(site)
             occupied += n_c * occupation[name]
     divisor = {"site": spec.n_sites, "cell": 1, "magnetic": occupied}[per]
     if divisor == 0:
