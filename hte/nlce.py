@@ -145,7 +145,7 @@ def check_cluster_size(max_bonds: int, twice_spin: int, memory_limit: int, worke
     spin = Fraction(twice_spin, 2)
     hint = f"use max_bonds <= {fits}" if fits >= 2 else "no max_bonds >= 2 fits; raise the memory limit"
     raise ResourceLimitError(
-        f"max_bonds {max_bonds}: the largest cluster has {max_bonds + 1} spins {spin}, whose largest S^z sector "
+        f"max_bonds {max_bonds}: the largest cluster has up to {max_bonds + 1} spins {spin}, whose largest S^z sector "
         f"has {largest_sector_dimension([twice_spin] * (max_bonds + 1))} states; diagonalising it densely "
         f"({workers} at a time) needs about {need / 2**30:.2f} GiB, above the limit of "
         f"{memory_limit / 2**30:.2f} GiB; {hint} (or pass a larger memory_limit)")

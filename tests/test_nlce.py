@@ -410,6 +410,15 @@ def test_low_temperatures_stay_finite_and_bands_widen(chain):
     assert result.T_conv["chi"] == 1.0
 
 
+def test_worker_processes_give_the_same_curves():
+    lattice = load_lattice("triangular")
+    model = build_model(lattice)
+    one = nlce_curves(lattice, model, 5, [0.5, 2.0], workers=1)
+    two = nlce_curves(lattice, model, 5, [0.5, 2.0], workers=2)
+    for name in ("lnZ", "chi", "C", "E", "S"):
+        assert np.allclose(one.partial_sums[name], two.partial_sums[name], rtol=1e-13, atol=1e-15), name
+
+
 def test_refuses_clusters_beyond_the_memory_budget_and_says_what_fits(chain):
     # 2 x 8 bytes x d^2 for the largest S^z sector d = C(N, N/2) of N = max_bonds + 1 spins 1/2: N = 16 gives
     # d = 12870, 2.5 GiB, within 4 GiB; N = 17 gives d = 24310, 8.8 GiB.
