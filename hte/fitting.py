@@ -536,7 +536,10 @@ def fit(lab: LabModel, measurements, parameters: dict, *, margin: float = 1.1, t
         if previous_windows is not None and all(np.array_equal(a, b) for a, b in zip(windows, previous_windows)):
             break
         if rounds > max_rounds:
-            warnings.append(f"the fit window still moved after {max_rounds} rounds; the last window is used")
+            warnings.append(f"the fit window still moved after {max_rounds} rounds; the window of the last fit "
+                            "is kept")
+            for d, used in zip(datasets, previous_windows):
+                d.used = used
             break
         lab.curves.reset_ensembles()
         solution, count = _least_squares(lab, datasets, parameters, free, max_evaluations, progress)
