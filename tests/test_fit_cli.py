@@ -150,3 +150,22 @@ def test_heat_capacity_alone_needs_a_start_value(tmp_path, capsys):
     data.write_text("T,C\n" + "".join(f"{t},{1.0 / t}\n" for t in range(30, 60)))
     assert main(["fit", "chain", "--order", "12", "--heat-capacity", str(data)]) == 2
     assert "give --start J1=VALUE" in capsys.readouterr().err
+
+
+def test_stored_symbolic_series_and_ratio_parameters(tmp_path):
+    # The demo's shipped series (symbols Jd and p_interlayer) and its two chi files; the true J1 is 30 K
+    # (data/demo/true_parameters.json, made by scripts/make_demo_data.py).
+    from hte.demo import DEMO_DIR, demo_series_path, read_true_parameters
+
+    code = main(["fit", "kagome-layered", "--series", str(demo_series_path()),
+                 "--chi", f"{DEMO_DIR / 'chi_0.1T.csv'}@0.1T", "--chi", f"{DEMO_DIR / 'chi_7T.csv'}@7T",
+                 "--columns", "sigma=sigma", "--n-magnetic", "3", "--vary", "J,Jd/J1,g,chi0",
+                 "--fix", "p_interlayer=0.1", "--json", str(tmp_path / "r.json")])
+    assert code == 0
+    report = json.loads((tmp_path / "r.json").read_text())
+    truth = read_true_parameters()["parameters"]
+    for name in ("J1", "g"):
+        p = report["parameters"][name]
+        assert abs(p["value"] - truth[name]) < 3 * p["stderr"], (name, p)
+    assert report["parameters"]["p_interlayer"] == {"value": 0.1, "stderr": None, "unit": "", "free": False}
+    assert report["derived"]["Jd"]["unit"] == "K"

@@ -240,7 +240,9 @@ def _table_model(lattice, args, couplings, occupations):
 
 
 def _model_from_document(path, lattice, free_couplings, free_occupations):
+    """A ModelCurves from a stored `hte series` document; every symbol in it becomes a model parameter."""
     import json
+    from fractions import Fraction
 
     from hte.errors import ParameterError
     from hte.model_curves import ModelCurves
@@ -251,7 +253,31 @@ def _model_from_document(path, lattice, free_couplings, free_occupations):
         raise ParameterError(f"--series {path}: cannot read the series document ({exc})") from None
     if doc.get("lattice") != lattice.name:
         raise ParameterError(f"--series {path}: the series is for lattice {doc.get('lattice')!r}, not {lattice.name!r}")
-    symbols = list(free_couplings) + [f"p_{c}" for c in free_occupations]
+
+    def numeric(text) -> bool:
+        try:
+            Fraction(str(text))
+            return True
+        except (ValueError, ZeroDivisionError):
+            return False
+
+    symbols = []
+    for label, value in doc.get("couplings", {}).items():
+        if not numeric(value):
+            if value != label:
+                raise ParameterError(f"--series {path}: coupling {label} is the expression {value!r}; hte fit reads "
+                                     f"series whose free couplings are the bare label symbols")
+            symbols.append(label)
+    for site_class, value in doc.get("occupation", {}).items():
+        if not numeric(value):
+            if value != f"p_{site_class}":
+                raise ParameterError(f"--series {path}: occupation of {site_class} is {value!r}; hte fit needs the "
+                                     f"symbol p_{site_class}")
+            symbols.append(value)
+    missing = [n for n in list(free_couplings) + [f"p_{c}" for c in free_occupations] if n not in symbols]
+    if missing:
+        raise ParameterError(f"--series {path}: {', '.join(missing)} cannot vary: the series holds "
+                             f"{', '.join(symbols) or 'no symbols'} (compute one with `hte series --symbolic`)")
     return ModelCurves(doc, lattice, parameters=tuple(symbols))
 
 
