@@ -13,8 +13,8 @@ the full bands and convergence temperatures T_conv.
 
 Units and conventions (CONVENTIONS.md): H = Σ J_ij S_i·S_j − h Σ S_i^z, J > 0 antiferromagnetic, k_B = 1,
 h = g μ_B B.  Temperatures and fields are in units of |J1| (the lattice's reference coupling); J1 may be
-antiferromagnetic (sign +1) or ferromagnetic (sign −1).  Because the β^n coefficient of a Heisenberg model is
-homogeneous of degree n in the couplings, the series in β|J1| of the model with J1 = sign·|J1| and ratios r has
+antiferromagnetic (sign +1) or ferromagnetic (sign −1).  Because the β^n coefficient of a Heisenberg or XXZ
+model without single-ion anisotropy is homogeneous of degree n in the couplings, the series in β|J1| of the model with J1 = sign·|J1| and ratios r has
 coefficients sign^n P_n(1, r): a ferromagnetic reference coupling needs no second series.
 
 Field dependence (per site, β = 1/T):
