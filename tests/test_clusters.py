@@ -215,13 +215,14 @@ def test_cluster_counts_and_classes_match_brute_force_one_order_higher(name):
     max_bonds = small_order(spec) + 1
     torus = brute_force_torus(spec, max_bonds)
     by_size = torus.grow(torus.root_edges(), max_bonds)
-    clusters = [c for n in range(1, max_bonds + 1) for c in by_size[n] if torus.is_translation_representative(c)]
     census = enumerate_clusters(spec, max_bonds)
-    assert census.clusters_per_cell[1:] == [len(by_size[n]) and sum(map(torus.is_translation_representative,
-                                                                        by_size[n])) for n in range(1, max_bonds + 1)]
-    classes = classify((torus.coloured_graph(c, spec), 1) for c in clusters)
-    assert sorted((g.number_of_edges(), g.number_of_nodes(), k) for g, k in classes) == \
-        sorted((c.n_bonds, c.n_sites, c.per_cell) for c in census.classes)
+    assert census.clusters_per_cell[1:] == [sum(map(torus.is_translation_representative, by_size[n]))
+                                           for n in range(1, max_bonds + 1)]
+    if len(spec.bonds) <= 6:  # networkx classification of the larger censuses would take many minutes
+        clusters = [c for n in range(1, max_bonds + 1) for c in by_size[n] if torus.is_translation_representative(c)]
+        classes = classify((torus.coloured_graph(c, spec), 1) for c in clusters)
+        assert sorted((g.number_of_edges(), g.number_of_nodes(), k) for g, k in classes) == \
+            sorted((c.n_bonds, c.n_sites, c.per_cell) for c in census.classes)
 
 
 @pytest.mark.parametrize("name, max_bonds", [("square", 3), ("honeycomb", 4), ("ladder", 4), ("chain", 4)])
