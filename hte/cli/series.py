@@ -49,6 +49,8 @@ def add_series_arguments(parser) -> None:
                              "much faster at high order")
     parser.add_argument("--no-tables", action="store_true", help="ignore the shipped tables in tables/")
     parser.add_argument("--no-cache", action="store_true", help="do not read or write the weight cache")
+    parser.add_argument("--force", action="store_true",
+                        help="run even when the estimate says it will not fit in memory")
 
 
 def add_arguments(parser) -> None:
@@ -86,6 +88,14 @@ def series_from_args(args, *, default_order: int | None = None):
     workers = args.workers or default_workers()
     if workers < 1:
         raise ParameterError(f"--workers {workers}: use at least 1")
+    if _worth_estimating(model, order):
+        from hte.estimate import check_memory, estimate_run
+
+        estimate = estimate_run(spec.without_labels([l for l, c in model.couplings.items() if c.is_zero]), model,
+                                order, workers)
+        print(f"# {estimate.describe()}", file=sys.stderr)
+        if not args.force:
+            check_memory(estimate, workers)
     cache = None
     if not args.no_cache:
         from hte.cache import WeightCache
@@ -100,6 +110,12 @@ def series_from_args(args, *, default_order: int | None = None):
         if cache is not None:
             cache.close()
     return normalise(ls, lattice=spec, model=model, per=args.per)
+
+
+def _worth_estimating(model, order: int) -> bool:
+    """Long runs get a time and memory estimate first (it costs a few seconds itself)."""
+    biggest = max(model.spin.values())
+    return order >= 11 or (biggest >= 1 and order >= 8) or (biggest >= 2 and order >= 6)
 
 
 def run(args) -> int:

@@ -1,0 +1,159 @@
+"""Before a long run: estimate its time and memory from cluster counts and a measured kernel cost.
+
+The estimate is deliberately simple and says so: the cluster and graph-class counts are enumerated exactly
+up to the size where that takes about a second, then extrapolated with the last measured growth factors;
+the enumeration time uses the measured time per cluster; the kernel time scales a measured kernel call on a
+path cluster by the growth of the largest S^z sector (the kernel's cost grows like its square); the memory is
+the kernel's working set for the largest cluster (sparse integer sector matrix and propagation blocks) per
+worker.  Expect the time to be right within a factor of a few; the memory bound is the one that matters for
+refusing a run.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from dataclasses import dataclass
+from fractions import Fraction
+
+from hte.clusters import enumerate_clusters
+from hte.errors import ResourceLimitError
+
+_PROBE_CLUSTERS = 200_000
+_BLOCK_BYTES = 3 * 2**20 * 8  # the kernel's propagation buffers (hte/exact.py)
+
+
+@dataclass
+class RunEstimate:
+    """Projected cost of a series run (numbers are estimates; see the module docstring)."""
+
+    order: int
+    clusters: int
+    graph_classes: int
+    enumeration_s: float
+    kernel_s: float
+    largest_sector: int
+    memory_bytes: int
+    extrapolated_from: int
+
+    @property
+    def seconds(self) -> float:
+        return self.enumeration_s + self.kernel_s
+
+    def describe(self) -> str:
+        return (f"estimate for order {self.order}: about {self.clusters:.3g} clusters per cell in "
+                f"{self.graph_classes:.3g} graph classes (counted to {self.extrapolated_from} bonds, extrapolated "
+                f"beyond); enumeration ~{_duration(self.enumeration_s)}, cluster series ~{_duration(self.kernel_s)}; "
+                f"largest S^z sector {self.largest_sector:,} states, kernel memory ~{self.memory_bytes / 2**30:.2f} GiB "
+                "per worker")
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.0f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
+def largest_sector(n_sites: int, twice_spin: int) -> int:
+    """Dimension of the largest S^z sector of n_sites spins S = twice_spin/2 (coefficient of a polynomial)."""
+    counts = [1]
+    for _ in range(n_sites):
+        nxt = [0] * (len(counts) + twice_spin)
+        for i, c in enumerate(counts):
+            for k in range(twice_spin + 1):
+                nxt[i + k] += c
+        counts = nxt
+    return max(counts)
+
+
+def available_memory() -> int:
+    """Physical memory of this machine in bytes."""
+    try:
+        return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):  # pragma: no cover - non-POSIX
+        return 8 * 2**30
+
+
+def estimate_run(spec, model, order: int, workers: int = 1) -> RunEstimate:
+    """Estimate time and memory of the series run of `model` on `spec` to `order` (see module docstring)."""
+    twice_spin = max(int(2 * s) for s in model.spin.values())
+    counts, classes, seconds = [], [], []
+    n = 0
+    while n < order:
+        n += 1
+        start = time.perf_counter()
+        census = enumerate_clusters(spec, n)
+        seconds.append(time.perf_counter() - start)
+        counts.append(sum(census.clusters_per_cell))
+        classes.append(len(census.classes))
+        if counts[-1] > _PROBE_CLUSTERS:
+            break
+    per_cluster = seconds[-1] / max(counts[-1], 1)
+    growth = counts[-1] / counts[-2] if len(counts) > 1 and counts[-2] else 1.0
+    class_growth = classes[-1] / classes[-2] if len(classes) > 1 and classes[-2] else 1.0
+    total, n_classes, enum_s = counts[-1], classes[-1], seconds[-1]
+    last_count, last_classes = counts[-1], classes[-1]
+    for _ in range(n + 1, order + 1):
+        last_count *= growth
+        last_classes *= class_growth
+        total += last_count
+        n_classes += last_classes
+        enum_s += last_count * per_cluster
+    # kernel: time real classes of the largest affordable size, scale by the square of the largest sector
+    kernel_s = _kernel_seconds(census, order, twice_spin, class_growth, model)
+    top = largest_sector(order + 1, twice_spin)
+    memory = top * (order + 2) * 16 + _BLOCK_BYTES + top * 64
+    return RunEstimate(order, int(total), int(n_classes), enum_s / max(workers, 1), kernel_s / max(workers, 1),
+                       top, int(memory), n)
+
+
+def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, model) -> float:
+    """Projected kernel time: measured on sample classes, scaled by (largest sector)^2 to larger clusters."""
+    from hte.exact import ClusterHamiltonian, cluster_cumulants
+
+    spin = Fraction(twice_spin, 2)
+    affordable = [c for c in census.classes if largest_sector(c.n_sites, twice_spin) <= 4000]
+    if not affordable:
+        affordable = [min(census.classes, key=lambda c: c.n_sites)]
+    probe_sites = max(c.n_sites for c in affordable)
+    sample = [c for c in affordable if c.n_sites == probe_sites][:3]
+    start = time.perf_counter()
+    for c in sample:
+        g = c.graph
+        cluster_cumulants(ClusterHamiltonian(spins=(spin,) * g.n_vertices,
+                                             bonds=tuple((u, v, Fraction(1), Fraction(1)) for u, v, _ in g.edges)),
+                          order)
+    probe_s = (time.perf_counter() - start) / len(sample)
+    probe_dim = largest_sector(probe_sites, twice_spin)
+    # sites of the classes per size; beyond the census, each extra bond adds at most one site
+    sizes = {}
+    for c in census.classes:
+        sizes.setdefault(c.n_bonds, []).append(c.n_sites)
+    top = max(sizes)
+    total = 0.0
+    for n in range(1, order + 1):
+        if n in sizes:
+            sites, factor = sizes[n], 1.0
+        else:
+            sites, factor = [k + (n - top) for k in sizes[top]], class_growth ** (n - top)
+        total += factor * sum(probe_s * (largest_sector(k, twice_spin) / probe_dim) ** 2 for k in sites)
+    return total
+
+
+_HOPELESS_S = 30 * 24 * 3600.0  # a run projected beyond a month is refused too (it would never be waited for)
+
+
+def check_memory(estimate: RunEstimate, workers: int, limit_bytes: int | None = None) -> None:
+    """Raise ResourceLimitError (with the estimate) if the run cannot fit in memory or would take months."""
+    if estimate.seconds > _HOPELESS_S:
+        raise ResourceLimitError(
+            f"{estimate.describe()}: far beyond a month on this machine. Lower --order, or add --force to try "
+            "anyway (spread it over a cluster with --scheduler)")
+    limit = limit_bytes or int(0.8 * available_memory())
+    need = estimate.memory_bytes * max(workers, 1)
+    if need > limit:
+        raise ResourceLimitError(
+            f"{estimate.describe()}; with {workers} worker(s) that is ~{need / 2**30:.1f} GiB, more than the "
+            f"{limit / 2**30:.1f} GiB available. Lower --order, use fewer --workers, or add --force to try anyway.")
