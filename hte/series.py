@@ -141,6 +141,9 @@ def write_json_atomic(doc: dict, path) -> None:
         with os.fdopen(fd, "w") as fh:
             json.dump(doc, fh, indent=1)
             fh.write("\n")
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
@@ -218,7 +221,7 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
 
 def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None, couplings=None, occupation=None,
                    anisotropy=None, per: str = "site", symbolic: bool = False, workers: int = 1, cache=None,
-                   progress: bool = False) -> HTSeries:
+                   progress: bool = False, use_tables: bool = False) -> HTSeries:
     """The high-temperature series of a spin model on a lattice, in a few lines.
 
     Parameters
@@ -234,6 +237,8 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
         Processes for enumeration and cluster series.
     cache : WeightCache or None
         Persistent store of cluster series (None: no cache).
+    use_tables : bool
+        Answer from a shipped table in tables/ when one covers the request.
 
     Examples
     --------
@@ -249,5 +254,11 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
     spec = lattice if isinstance(lattice, LatticeSpec) else load_lattice(lattice)
     spin_model = build_model(spec, kind=model, spin=spin, couplings=couplings, anisotropy=anisotropy,
                              occupation=occupation, symbolic=symbolic)
+    if use_tables:
+        from hte.tables import find_table
+
+        found = find_table(spec, spin_model, order)
+        if found is not None:
+            return HTSeries.from_table(found[0], order, lattice=spec, model=spin_model, per=per)
     ls = expand_lattice(spec, spin_model, order, cache=cache, workers=workers, progress=progress)
     return normalise(ls, lattice=spec, model=spin_model, per=per)
