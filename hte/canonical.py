@@ -330,13 +330,13 @@ def canonical_into(ws, n, m):
                 first_depth = depth
                 depth -= 1
                 continue
-            order = _compare(vec, _CAND, _BEST, length)
-            if order < 0:
+            relation = _compare(vec, _CAND, _BEST, length)
+            if relation < 0:
                 _store_leaf(vec, mat, row, depth, n, length, _BEST, _BEST_LABELS, _BEST_PATH)
                 best_depth = depth
                 depth -= 1
                 continue
-            if order == 0:
+            if relation == 0:
                 twin_labels, twin_path, twin_depth = _BEST_LABELS, _BEST_PATH, best_depth
             elif _compare(vec, _CAND, _FIRST, length) == 0:
                 twin_labels, twin_path, twin_depth = _FIRST_LABELS, _FIRST_PATH, first_depth
