@@ -73,7 +73,10 @@ def find_table(spec, model, order: int, directory: Path = TABLES_DIR):
     }
     for path in table_paths(directory):
         doc = read_table(path)
-        have_couplings = {k: v for k, v in _normal_values(doc["couplings"]).items() if Fraction(v) != 0}
+        try:
+            have_couplings = {k: v for k, v in _normal_values(doc["couplings"]).items() if Fraction(v) != 0}
+        except (ValueError, ZeroDivisionError):
+            continue  # a symbolic table never answers a numeric request
         if (doc["lattice"] != want["lattice"] or doc["model"] != want["model"]
                 or _normal_spin(doc["spin"]) != want["spin"] or have_couplings != want["couplings"]
                 or _normal_values(doc["occupation"]) != want["occupation"] or doc["order"] < order):
