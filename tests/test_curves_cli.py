@@ -11,6 +11,7 @@ import pytest
 from hte.cli import main
 from hte.curves import curves_from_series
 from hte.series import compute_series
+from ring_reference import ring_spectrum
 
 E0_CHAIN = 0.25 - math.log(2)  # Heisenberg chain ground-state energy per site: L. Hulthen, Ark. Mat. Astron. Fys. 26A, 1 (1938)
 
@@ -57,24 +58,8 @@ def test_heisenberg_chain_entropy_method_heat_capacity_maximum_matches_bethe_ans
 
 
 def _ring_thermodynamics(length, temperatures):
-    """Exact chi* and C per site of the spin-1/2 Heisenberg ring, by dense diagonalisation in S^z sectors."""
-    levels = []
-    for up in range(length + 1):
-        states = [s for s in range(1 << length) if bin(s).count("1") == up]
-        index = {s: i for i, s in enumerate(states)}
-        h = np.zeros((len(states), len(states)))
-        for s in states:
-            for i in range(length):
-                j = (i + 1) % length
-                if ((s >> i) & 1) == ((s >> j) & 1):
-                    h[index[s], index[s]] += 0.25
-                else:
-                    h[index[s], index[s]] -= 0.25
-                    h[index[s ^ (1 << i) ^ (1 << j)], index[s]] += 0.5
-        m = up - length / 2
-        levels += [(e, m) for e in np.linalg.eigvalsh(h)]
-    e = np.array([x for x, _ in levels])
-    m = np.array([y for _, y in levels])
+    """Exact chi* and C per site of the spin-1/2 Heisenberg ring (tests/ring_reference.py)."""
+    e, m = ring_spectrum(length)
     out = []
     for t in temperatures:
         w = np.exp(-(e - e.min()) / t)

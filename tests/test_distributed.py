@@ -9,19 +9,16 @@ import subprocess
 import sys
 import threading
 import time
-from pathlib import Path
 
 import pytest
 
 from hte.cache import WeightCache
-from hte.expansion import WeightBook, make_valued
 from hte.lattice_file import load_lattice
 from hte.models import build_model
-from hte.series import compute_series, normalise
+from hte.series import normalise
 from hte.expansion import expand_lattice
 
 pytest.importorskip("distributed")
-DASK = [sys.executable, "-m", "distributed.cli.dask_scheduler"]
 
 
 @pytest.fixture

@@ -4,7 +4,6 @@ every built-in lattice, exchange conventions and energy units, warnings, non-con
 from __future__ import annotations
 
 import math
-from itertools import combinations
 
 import numpy as np
 import pytest
@@ -16,29 +15,11 @@ from hte.fitting import FitDidNotConvergeError, LabModel, default_parameters, en
 from hte.lattice_file import builtin_lattices, load_lattice
 from hte.measured import Measurement
 from hte.model_curves import ModelCurves
+from ring_reference import ring_spectrum
 
 # N_A mu_B^2 / k_B in emu K/mol (cgs): 0.375 / (g^2 S(S+1)/3) with the handbook Curie constant 0.12505 g^2 S(S+1)
 # per mole of spins -> N_A mu_B^2/k_B = 3 x 0.12505 = 0.37515 emu K/mol; here from CODATA via scipy.
 NA_MUB2_OVER_KB = sc.N_A * (sc.physical_constants["Bohr magneton"][0] * 1e3) ** 2 / (sc.k * 1e7)
-
-
-def ring_spectrum(length: int):
-    """Eigenvalues and S^z of the spin-1/2 Heisenberg ring H = sum S_i.S_{i+1} (J = 1), dense numpy per S^z block."""
-    energies, magnetisations = [], []
-    for up in range(length + 1):
-        states = [sum(1 << i for i in chosen) for chosen in combinations(range(length), up)]
-        index = {s: k for k, s in enumerate(states)}
-        matrix = np.zeros((len(states), len(states)))
-        for k, s in enumerate(states):
-            for i in range(length):
-                j = (i + 1) % length
-                a, b = (s >> i) & 1, (s >> j) & 1
-                matrix[k, k] += 0.25 if a == b else -0.25
-                if a != b:
-                    matrix[index[s ^ (1 << i) ^ (1 << j)], k] += 0.5
-        energies.append(np.linalg.eigvalsh(matrix))
-        magnetisations.append(np.full(len(states), up - length / 2))
-    return np.concatenate(energies), np.concatenate(magnetisations)
 
 
 def ring_thermodynamics(spectrum, temperatures):

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from functools import lru_cache
-from itertools import combinations
 
 import numpy as np
 import pytest
@@ -11,34 +10,12 @@ import pytest
 from hte.errors import ParameterError
 from hte.model_curves import ModelCurves, curie_weiss_temperature
 from hte.series import compute_series
+from ring_reference import ring_spectrum
 
 # ------------------------------------------------------------------------------------------------ reference
 
 
 @lru_cache(maxsize=None)
-def ring_spectrum(length: int):
-    """Eigenvalues and S^z of the spin-1/2 Heisenberg ring H = sum_i S_i.S_{i+1} (J = 1), by S^z sector.
-
-    Dense diagonalisation with numpy of each S^z block, built here from bit strings (an independent route:
-    no part of hte is used).
-    """
-    energies, magnetisations = [], []
-    for up in range(length + 1):
-        states = [sum(1 << i for i in chosen) for chosen in combinations(range(length), up)]
-        index = {s: k for k, s in enumerate(states)}
-        matrix = np.zeros((len(states), len(states)))
-        for k, s in enumerate(states):
-            for i in range(length):
-                j = (i + 1) % length
-                a, b = (s >> i) & 1, (s >> j) & 1
-                matrix[k, k] += 0.25 if a == b else -0.25
-                if a != b:
-                    matrix[index[s ^ (1 << i) ^ (1 << j)], k] += 0.5
-        energies.append(np.linalg.eigvalsh(matrix))
-        magnetisations.append(np.full(len(states), up - length / 2))
-    return np.concatenate(energies), np.concatenate(magnetisations)
-
-
 def ring_thermodynamics(length: int, temperature: float, field: float = 0.0) -> dict:
     """Per site: m = <S^z>, chi = M/h (or d<S^z>/dh at h = 0) and C = beta^2 var(E - h S^z), g mu_B = k_B = 1."""
     energies, sz = ring_spectrum(length)

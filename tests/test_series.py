@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import itertools
 from fractions import Fraction
-from math import comb
 
 import numpy as np
 import pytest

@@ -11,7 +11,6 @@ Temperatures are in units of the reference coupling; below T_conv curves are est
 from __future__ import annotations
 
 import json
-import os
 import sys
 from pathlib import Path
 
@@ -281,7 +280,6 @@ def _write_outputs(curvesets, args, notes) -> None:
 
 def _write_family_csv(curvesets, path) -> None:
     import csv
-    import io
 
     from hte.curves import _write_atomically
 
