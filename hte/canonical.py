@@ -58,7 +58,8 @@ _CAND, _BEST, _FIRST = 13, 14, 15                # certificates: current leaf, s
 _BEST_LABELS, _BEST_PATH = 16, 17                # labelling and path of the smallest leaf
 _FIRST_LABELS, _FIRST_PATH = 18, 19              # labelling and path of the first leaf
 _ORBIT = 20                                      # union-find forest of orbits
-_N_ROWS = 21
+_NEW_CELL, _NEW_END = 21, 22                     # refinement: cells of the next round and their ends
+_N_ROWS = 23
 
 
 @njit(cache=True)
@@ -146,21 +147,25 @@ def _refine(vec, mat, key, row, n, n_cells):
 
     Each round gives every vertex the hash sum of mix(cell(u) * 1000003 + colour(v, u) + 1) over its
     neighbours u and ranks the vertices by (cell, hash sum); it stops when no cell splits.  Only the ranks
-    enter the result, so vertices in singleton cells need no hash.
+    enter the result, so vertices in singleton cells need no hash.  vec[_ORDER] lists the vertices by cell and
+    vec[_SCRATCH, c] is the end of cell c in it; both stay valid from round to round, since the new cells
+    keep the order of the old ones.
     """
-    while n_cells < n:
-        # counting sort by cell: afterwards vec[_SCRATCH, c] is the end of cell c in vec[_ORDER]
-        for c in range(n_cells + 1):
-            vec[_SCRATCH, c] = 0
-        for v in range(n):
-            vec[_SCRATCH, mat[row, v] + 1] += 1
-        for c in range(n_cells):
-            vec[_SCRATCH, c + 1] += vec[_SCRATCH, c]
-        for v in range(n):
-            c = mat[row, v]
-            vec[_ORDER, vec[_SCRATCH, c]] = v
-            vec[_SCRATCH, c] += 1
-        # hash and sort the vertices of each non-singleton cell
+    if n_cells >= n:
+        return n_cells
+    # counting sort by cell
+    for c in range(n_cells + 1):
+        vec[_SCRATCH, c] = 0
+    for v in range(n):
+        vec[_SCRATCH, mat[row, v] + 1] += 1
+    for c in range(n_cells):
+        vec[_SCRATCH, c + 1] += vec[_SCRATCH, c]
+    for v in range(n):
+        c = mat[row, v]
+        vec[_ORDER, vec[_SCRATCH, c]] = v
+        vec[_SCRATCH, c] += 1
+    while True:
+        # hash and sort the vertices of each non-singleton cell; number the new cells as they come
         new_cells = 0
         lo = 0
         for c in range(n_cells):
@@ -180,29 +185,26 @@ def _refine(vec, mat, key, row, n, n_cells):
                         vec[_ORDER, j] = vec[_ORDER, j - 1]
                         j -= 1
                     vec[_ORDER, j] = a
-                new_cells += 1
+                vec[_NEW_CELL, vec[_ORDER, lo]] = new_cells
                 for i in range(lo + 1, hi):
                     if key[vec[_ORDER, i]] != key[vec[_ORDER, i - 1]]:
+                        vec[_NEW_END, new_cells] = i
                         new_cells += 1
+                    vec[_NEW_CELL, vec[_ORDER, i]] = new_cells
             else:
-                new_cells += 1
+                vec[_NEW_CELL, vec[_ORDER, lo]] = new_cells
+            vec[_NEW_END, new_cells] = hi
+            new_cells += 1
             lo = hi
         if new_cells == n_cells:
             return n_cells
-        # renumber the cells in (old cell, hash) order
-        cell = -1
-        lo = 0
-        for c in range(n_cells):
-            hi = vec[_SCRATCH, c]
-            cell += 1
-            mat[row, vec[_ORDER, lo]] = cell
-            for i in range(lo + 1, hi):
-                if key[vec[_ORDER, i]] != key[vec[_ORDER, i - 1]]:
-                    cell += 1
-                mat[row, vec[_ORDER, i]] = cell
-            lo = hi
+        for v in range(n):
+            mat[row, v] = vec[_NEW_CELL, v]
+        for c in range(new_cells):
+            vec[_SCRATCH, c] = vec[_NEW_END, c]
         n_cells = new_cells
-    return n_cells
+        if n_cells == n:
+            return n_cells
 
 
 @njit(cache=True, inline="always")
