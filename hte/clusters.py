@@ -170,10 +170,11 @@ def _site_neighbours(box: _Box):
 # ---------------------------------------------------------------------------------------------- census
 def _census_worker(args):
     box, roots, max_bonds = args
-    certs, counts, per_size = enumerate_bond_clusters(
+    certs, lengths, counts, per_size = enumerate_bond_clusters(
         max_bonds, roots, box.bond_u, box.bond_v, box.bond_col, box.site_col, box.inc_ptr, box.inc_bond,
         box.n_sites)
-    return [(tuple(int(x) for x in c), int(k)) for c, k in zip(certs, counts)], per_size.tolist()
+    classes = [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
+    return classes, per_size.tolist()
 
 
 def _roots_by_work(box: _Box, max_bonds: int) -> list[np.ndarray]:
@@ -260,10 +261,10 @@ def subgraph_counts(graph: ColouredGraph) -> dict[str, int]:
     order = np.lexsort((ids, ends))
     ptr = np.zeros(n + 1, np.int64)
     np.add.at(ptr, ends + 1, 1)
-    certs, counts, _ = enumerate_bond_clusters(
+    certs, lengths, counts, _ = enumerate_bond_clusters(
         m - 1, np.arange(m, dtype=np.int64), edges[:, 0].copy(), edges[:, 1].copy(), edges[:, 2].copy(),
         np.asarray(graph.vertex_colours, np.int64), np.cumsum(ptr), ids[order], n)
-    return {certificate_key(c): int(k) for c, k in zip(certs, counts)}
+    return {certificate_key(certs[i, : lengths[i]]): int(counts[i]) for i in range(counts.size)}
 
 
 def default_workers() -> int:

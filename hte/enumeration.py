@@ -6,7 +6,7 @@ root and otherwise only bonds with larger ids is visited exactly once; no subset
 nothing is deduplicated afterwards.  On a lattice (see :mod:`hte.clusters`) the ids order bonds by the
 lexicographic order of their home cell, which is translation compatible, so rooting at the bonds of one cell
 counts each cluster exactly once per translation class.  Each visited cluster is classified on the fly by
-its canonical certificate (:mod:`hte.canonical`) into a hash table held inside the compiled code.
+its canonical certificate (:mod:`hte.canonical`) into a hash table of arrays held inside the compiled code.
 
 References
 ----------
@@ -16,46 +16,69 @@ References
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, types
-from numba.typed import Dict, List
+from numba import njit
 
 from hte.canonical import canonical_into, new_workspace, workspace_inputs, workspace_result
 
 
-@njit(cache=True)
-def _hash_cert(cert):
-    h = np.uint64(1469598103934665603)
-    for x in cert:
-        h = (h ^ np.uint64(x + 7)) * np.uint64(1099511628211)
-        h ^= h >> np.uint64(29)
-    return np.int64(h & np.uint64(0x7FFFFFFFFFFFFFFF))
+@njit(cache=True, inline="always")
+def _certificate_hash(cert, length):
+    """A 64-bit hash of cert[:length] (splitmix64 of each non-zero entry and its position, summed)."""
+    h = np.uint64(length)
+    for i in range(length):
+        if cert[i] != 0:
+            x = np.uint64(i) * np.uint64(1000003) + np.uint64(cert[i])
+            x = (x ^ (x >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+            x = (x ^ (x >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+            h += x ^ (x >> np.uint64(31))
+    return h
 
 
-@njit(cache=True)
-def _same(a, b):
-    if a.shape[0] != b.shape[0]:
-        return False
-    for i in range(a.shape[0]):
-        if a[i] != b[i]:
-            return False
-    return True
-
-
-@njit(cache=True)
-def _classify(cert, table, certs, counts):
-    """Add one occurrence of `cert` to the class table (open addressing on a 63-bit hash, exact compare)."""
-    h = _hash_cert(cert)
+@njit(cache=True, inline="always")
+def _lookup(slots, class_hash, certs, lengths, cert, length, h):
+    """Slot of the class of cert[:length] in the open-addressing table `slots`, or of the empty slot for it."""
+    mask = slots.shape[0] - 1
+    slot = np.int64(h & np.uint64(mask))
     while True:
-        if h not in table:
-            table[h] = len(certs)
-            certs.append(cert.copy())
-            counts.append(1)
-            return
-        idx = table[h]
-        if _same(certs[idx], cert):
-            counts[idx] += 1
-            return
-        h = (h + 1) & 0x7FFFFFFFFFFFFFFF
+        k = slots[slot]
+        if k < 0:
+            return slot
+        if class_hash[k] == h and lengths[k] == length:
+            same = True
+            for i in range(length):
+                if certs[k, i] != cert[i]:
+                    same = False
+                    break
+            if same:
+                return slot
+        slot = (slot + 1) & mask
+
+
+@njit(cache=True)
+def _grown_slots(class_hash, n_classes, capacity):
+    """A fresh slot table of `capacity` (a power of 2) holding classes 0..n_classes-1."""
+    slots = -np.ones(capacity, np.int64)
+    for k in range(n_classes):
+        slot = np.int64(class_hash[k] & np.uint64(capacity - 1))
+        while slots[slot] >= 0:
+            slot = (slot + 1) & (capacity - 1)
+        slots[slot] = k
+    return slots
+
+
+@njit(cache=True)
+def _grown_rows(certs, lengths, counts, class_hash):
+    """The per-class arrays with twice the rows."""
+    rows = 2 * certs.shape[0]
+    new_certs = np.zeros((rows, certs.shape[1]), np.int64)
+    new_certs[: certs.shape[0]] = certs
+    new_lengths = np.zeros(rows, np.int64)
+    new_lengths[: lengths.shape[0]] = lengths
+    new_counts = np.zeros(rows, np.int64)
+    new_counts[: counts.shape[0]] = counts
+    new_hash = np.zeros(rows, np.uint64)
+    new_hash[: class_hash.shape[0]] = class_hash
+    return new_certs, new_lengths, new_counts, new_hash
 
 
 @njit(cache=True)
@@ -64,9 +87,12 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
 
     Returns
     -------
-    certs : list of int64 arrays
-        Canonical certificates of the graph classes met.
-    counts : list of int
+    certs : int64[k, L]
+        Canonical certificates of the k graph classes met; row i holds certificate i in its first lengths[i]
+        entries.
+    lengths : int64[k]
+        Certificate lengths.
+    counts : int64[k]
         Number of clusters in each class.
     per_size : int64[max_bonds + 1]
         Number of clusters with n bonds.
@@ -91,13 +117,14 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     vcol, eu, ev, ec = workspace_inputs(ws)
     best, _ = workspace_result(ws)
 
-    table = Dict.empty(key_type=types.int64, value_type=types.int64)
-    certs = List()
-    certs.append(np.zeros(1, np.int64))
-    certs.pop()
-    counts = List()
-    counts.append(0)
-    counts.pop()
+    # the graph classes: an open-addressing hash table of class indices, kept at most half full
+    n_vertices = max_bonds + 1
+    certs = np.zeros((64, 1 + n_vertices + n_vertices * (n_vertices - 1) // 2), np.int64)
+    lengths = np.zeros(64, np.int64)
+    counts = np.zeros(64, np.int64)
+    class_hash = np.zeros(64, np.uint64)
+    slots = -np.ones(128, np.int64)
+    n_classes = 0
     per_size = np.zeros(max_bonds + 1, np.int64)
 
     for r in range(roots.shape[0]):
@@ -151,7 +178,21 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                     ev[k] = a
                 ec[k] = bond_col[c]
             length = canonical_into(ws, nv, size)
-            _classify(best[:length], table, certs, counts)
+            h = _certificate_hash(best, length)
+            slot = _lookup(slots, class_hash, certs, lengths, best, length, h)
+            if slots[slot] >= 0:
+                counts[slots[slot]] += 1
+            else:
+                if n_classes == certs.shape[0]:
+                    certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
+                certs[n_classes, :length] = best[:length]
+                lengths[n_classes] = length
+                counts[n_classes] = 1
+                class_hash[n_classes] = h
+                slots[slot] = n_classes
+                n_classes += 1
+                if 2 * n_classes > slots.shape[0]:
+                    slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
             per_size[size] += 1
             if size < max_bonds:
                 ns = seg_end[d]
@@ -180,7 +221,7 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                         local[s] = -1
                         nv -= 1
         reached[root] = False
-    return certs, counts, per_size
+    return certs[:n_classes], lengths[:n_classes], counts[:n_classes], per_size
 
 
 @njit(cache=True)
