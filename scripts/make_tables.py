@@ -1,4 +1,7 @@
-"""Compute and store series tables: tables/<lattice>-heisenberg-s1_2.json (see hte/tables.py)."""
+"""Compute and store series tables: tables/<lattice>-heisenberg-s1_2[-TAG].json (see hte/tables.py).
+
+LATTICE may carry coupling values after a colon, e.g. `cubic:J1=-1` (the ferromagnet; file suffix "-J1_-1").
+"""
 
 from __future__ import annotations
 
@@ -19,9 +22,11 @@ from hte.series import normalise, write_json_atomic
 from hte.tables import TABLE_FORMAT, TABLES_DIR
 
 
-def make_table(name: str, order: int) -> None:
+def make_table(request: str, order: int) -> None:
+    name, _, assignments = request.partition(":")
+    couplings = dict(item.split("=") for item in assignments.split(",")) if assignments else {}
     spec = load_lattice(name)
-    model = build_model(spec)
+    model = build_model(spec, couplings=couplings)
     start = time.perf_counter()
     with WeightCache() as cache:
         ls = expand_lattice(spec, model, order, cache=cache, workers=default_workers(), progress=sys.stderr.isatty())
@@ -31,17 +36,19 @@ def make_table(name: str, order: int) -> None:
     series.provenance = {
         "format": TABLE_FORMAT,
         "hte_version": __version__,
-        "command": f"scripts/make_tables {name} {order}",
+        "command": f"scripts/make_tables {request} {order}",
         "lattice_file": os.path.relpath(spec.path, TABLES_DIR.parent) if spec.path else name,
         "lattice_sha256": spec.sha256,
-        "convention": "H = J1 sum_<ij> S_i.S_j, J1 = 1 > 0 antiferromagnetic, k_B = 1, g mu_B = 1; coefficients of beta^n per site",
+        "convention": "H = sum_<ij> J S_i.S_j (J > 0 antiferromagnetic; couplings as in 'couplings'), k_B = 1, "
+                      "g mu_B = 1; coefficients of beta^n per site",
         "computed": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "wall_time_s": round(wall, 1),
         "peak_memory_mib_main_process": round(peak_mib),
         "machine": f"{platform.machine()}, {os.cpu_count()} cores, {platform.system()} {platform.release()}",
         "stats": {k: (round(v, 2) if isinstance(v, float) else v) for k, v in ls.stats.items()},
     }
-    path = TABLES_DIR / f"{name}-heisenberg-s1_2.json"
+    tag = "".join(f"-{k}_{v}" for k, v in couplings.items())
+    path = TABLES_DIR / f"{name}-heisenberg-s1_2{tag}.json"
     write_json_atomic(series.to_json_dict(), path)
     print(f"{name}: order {order} in {wall:.1f} s -> {path}", flush=True)
 
