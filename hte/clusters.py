@@ -19,7 +19,7 @@ from __future__ import annotations
 import itertools
 import os
 import time
-from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from fractions import Fraction
 
@@ -206,7 +206,7 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
         Processes to share the root bonds of the unit cell between (1 = in this process).  Each root bond is
         one job; the jobs go out the most laborious first, to whichever worker is free.
     progress : callable, optional
-        Called as progress(message) when each stage finishes.
+        Called as progress(message) each time the clusters of one root bond are done.
     """
     from hte.errors import ParameterError
 
@@ -218,12 +218,24 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
     box = _build_box(spec, max_bonds)
     totals: dict[tuple, int] = {}
     per_size = np.zeros(max_bonds + 1, np.int64)
+    results = []
+
+    def report():
+        if progress:
+            elapsed = time.perf_counter() - start
+            progress(f"root bonds done: {len(results)}/{len(jobs)}, {elapsed:.0f} s elapsed")
+
     if workers <= 1 or box.root_bonds.size == 1:
-        results = [_census_worker((box, box.root_bonds, max_bonds))]
+        jobs = [(box, np.array([root], np.int64), max_bonds) for root in box.root_bonds]
+        for job in jobs:
+            results.append(_census_worker(job))
+            report()
     else:
         jobs = [(box, roots, max_bonds) for roots in _roots_by_work(box, max_bonds)]
         with ProcessPoolExecutor(max_workers=min(workers, len(jobs))) as pool:
-            results = list(pool.map(_census_worker, jobs))
+            for result in as_completed([pool.submit(_census_worker, job) for job in jobs]):
+                results.append(result.result())
+                report()
     for classes, sizes in results:
         per_size += np.asarray(sizes, np.int64)
         for cert, k in classes:
@@ -231,8 +243,6 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
     graph_classes = [GraphClass(certificate_key(c), certificate_to_graph(c), k) for c, k in totals.items()]
     graph_classes.sort(key=lambda g: (g.n_bonds, g.n_sites, g.key))
     elapsed = time.perf_counter() - start
-    if progress:
-        progress(f"{sum(per_size)} clusters in {len(graph_classes)} graph classes, {elapsed:.1f} s")
     return ClusterCensus(spec.name, max_bonds, spec.n_sites, tuple(spec.site_classes), tuple(spec.labels),
                          graph_classes, [int(x) for x in per_size], [elapsed])
 

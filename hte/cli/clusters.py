@@ -51,7 +51,14 @@ def run(args) -> int:
     spec = spec.without_classes(dropped)
     workers = args.workers or default_workers()
 
-    census = enumerate_clusters(spec, args.max_bonds, workers=workers)
+    def show(message):
+        if sys.stderr.isatty():
+            print(f"\r  enumerating {spec.name} to {args.max_bonds} bonds: {message} ", end="", file=sys.stderr,
+                  flush=True)
+
+    census = enumerate_clusters(spec, args.max_bonds, workers=workers, progress=show)
+    if sys.stderr.isatty():
+        print(file=sys.stderr)
     print(f"# {spec.name}: {spec.n_sites} sites per cell; labels {', '.join(spec.labels)}; "
           f"{census.seconds[-1]:.2f} s with {workers} worker(s)")
     print(f"{'n':>3} {'clusters/site':>18} {'graph classes':>14} {'max sites':>10}")
