@@ -4,7 +4,8 @@ Input is a series JSON file (from `hte series --json`) or a lattice with the ser
 (Padé ensembles), dlog (Dlog-Padé: critical point and exponent), entropy (the entropy method; needs --e0 and
 --low-t; ranges such as --e0 -0.45:-0.40:6 scan them), nlce (numerical linked clusters; lattice input) and
 compare (overlay of the routes, flags where they disagree).  --scan NAME=VALUES varies one coupling or
-site-class occupation (e.g. --scan J2=0,0.1,0.2 or --scan interlayer=0:0.2:5) from one symbolic series.
+site-class occupation (e.g. --scan J2=0,0.1,0.2 or --scan interlayer=0:0.2:5) from one symbolic series, or
+the single-ion anisotropy of a class (--scan D:magnetic=0:1:3, one series per value).
 Temperatures are in units of the reference coupling; below T_conv curves are estimates, not predictions.
 """
 
@@ -31,9 +32,13 @@ def add_arguments(parser) -> None:
     parser.add_argument("--points", type=int, default=200, help="number of temperatures (geometric grid)")
     parser.add_argument("--tolerance", type=float, default=0.01,
                         help="relative band half-width that defines T_conv (default 0.01)")
+    parser.add_argument("--variable", default="beta", metavar="KIND[:A]",
+                        help="pade: series variable beta (default), euler:A (beta/(1+A beta)), exp:A "
+                             "(1-exp(-A beta)) or square (beta^2, even series)")
     parser.add_argument("--max-bonds", type=int, default=None, help="nlce: largest cluster in bonds (default 8)")
     parser.add_argument("--scan", default=None, metavar="NAME=VALUES",
-                        help="vary one coupling label or site-class occupation: v1,v2,... or start:stop:count")
+                        help="vary one coupling label, site-class occupation or D:CLASS anisotropy: v1,v2,... or "
+                             "start:stop:count")
     parser.add_argument("--json", metavar="FILE", default=None, help="write the curves as JSON (atomically)")
     parser.add_argument("--csv", metavar="FILE", default=None, help="write the curves as CSV (atomically)")
     parser.add_argument("--png", metavar="FILE", default=None, help="figure (.png, .svg or .pdf)")
@@ -124,7 +129,24 @@ def _one_route(method, doc, args, grid, label=None):
         e0_values, classes = _entropy_options(args)
         return curves_from_series(doc, "entropy", temperatures=grid, e0=e0_values[0], low_t=classes[0],
                                   tolerance=args.tolerance, label=label or f"entropy e0={e0_values[0]:g} {classes[0]}")
-    return curves_from_series(doc, method, temperatures=grid, tolerance=args.tolerance, label=label or method)
+    transform = _transform(args) if method == "pade" else None
+    return curves_from_series(doc, method, temperatures=grid, tolerance=args.tolerance, transform=transform,
+                              label=label or method)
+
+
+def _transform(args):
+    """The Padé variable asked for with --variable (hte.pade.VariableTransform)."""
+    from fractions import Fraction
+
+    from hte.errors import ParameterError
+    from hte.pade import VariableTransform
+
+    kind, _, a = args.variable.partition(":")
+    try:
+        return VariableTransform(kind, Fraction(a) if a else 1)
+    except (ValueError, ZeroDivisionError):
+        raise ParameterError(f"--variable {args.variable!r}: write beta, euler:A, exp:A or square, A > 0 "
+                             "(e.g. --variable euler:0.5)") from None
 
 
 def _nlce_route(args, grid, label=None):
@@ -146,6 +168,9 @@ def _nlce_route(args, grid, label=None):
                          workers=args.workers or default_workers(), tolerance=args.tolerance)
     curveset = result.to_curve_set()
     curveset.label = label or "nlce"
+    curveset.metadata["nlce_candidates"] = {
+        name: {kind: [float(v) for v in values] for kind, values in candidates.items()}
+        for name, candidates in result.estimates.items()}
     return curveset
 
 
@@ -193,6 +218,8 @@ def _scan(args, grid):
         raise ParameterError(f"--scan {args.scan!r}: write NAME=VALUES, e.g. --scan J2=0,0.1,0.2")
     values = parse_values(values_text, "--scan")
     spec = load_lattice(args.lattice)
+    if name.startswith("D:"):
+        return _anisotropy_scan(args, grid, spec, name[2:], values)
     couplings = parse_assignments(args.couplings, "--couplings")
     occupation = parse_assignments(args.occupation, "--occupation")
     symbol = sympy.Symbol(f"scan_{name}")
@@ -234,6 +261,25 @@ def _scan(args, grid):
     return results
 
 
+def _anisotropy_scan(args, grid, spec, site_class, values):
+    """Scan the single-ion anisotropy D of one site class: one numeric series per value (D is not symbolic)."""
+    from hte.cli.series import parse_assignments, series_from_args
+    from hte.errors import ParameterError
+
+    if site_class not in spec.site_classes:
+        raise ParameterError(f"--scan D:{site_class}: unknown site class; the lattice has {', '.join(spec.site_classes)}")
+    base = parse_assignments(args.anisotropy, "--anisotropy")
+    results = []
+    for value in values:
+        args.anisotropy = ",".join(f"{k}={v}" for k, v in dict(base, **{site_class: repr(value)}).items())
+        doc = series_from_args(args, default_order=10).to_json_dict()
+        cs = _one_route("pade" if args.method in ("compare", "nlce") else args.method, doc, args, grid,
+                        label=f"D({site_class}) = {value:g}")
+        cs.metadata["scan"] = {f"D:{site_class}": value}
+        results.append(cs)
+    return results
+
+
 def _entropy_scan_table(doc, args, grid) -> int:
     from hte.curves import read_series
     from hte.entropy_method import entropy_scan
@@ -268,6 +314,10 @@ def _write_outputs(curvesets, args, notes) -> None:
                                                    for cs in curvesets]}
         if notes:
             doc["disagreements"] = notes
+        for cs in curvesets:
+            if "nlce_candidates" in cs.metadata:
+                target = doc if len(curvesets) == 1 else next(d for d in doc["sets"] if d["label"] == cs.label)
+                target["nlce_candidates"] = cs.metadata["nlce_candidates"]
         write_json_atomic(doc, args.json)
     if args.csv:
         if len(curvesets) == 1:
@@ -307,6 +357,13 @@ def _summary(curvesets) -> None:
             print(f"#   warning: {w}")
         if cs.fallback:
             print(f"#   no approximant survived for {', '.join(cs.fallback)}: the raw truncated series is shown")
+        if "nlce_candidates" in cs.metadata:
+            t = cs.temperatures
+            picks = sorted({0, len(t) // 4, len(t) // 2, len(t) - 1})
+            for name, candidates in cs.metadata["nlce_candidates"].items():
+                for kind, values in candidates.items():
+                    shown = ", ".join(f"T={t[i]:.3g}: {values[i]:.6g}" for i in picks)
+                    print(f"#   nlce {name} {kind:>13}: {shown}")
     first = curvesets[0]
     names = [n for n in ("chi", "C", "S") if n in first.curves]
     print(f"{'T':>10} " + " ".join(f"{n + ' [' + (cs.label or cs.method) + ']':>28}" for cs in curvesets
