@@ -158,3 +158,21 @@ def test_simple_cubic_ferromagnet_curie_temperature_from_dlog_pade():
     assert estimate.T_c == pytest.approx(0.839, rel=0.02)
     # 3D Heisenberg exponent gamma = 1.40 (common practice; field-theory and series estimates 1.39-1.40)
     assert estimate.gamma == pytest.approx(1.40, rel=0.05)
+
+
+def test_anisotropy_scan_and_transformed_pade_variable(tmp_path, capsys):
+    # Single-ion anisotropy D > 0 on spin 1 lowers <(S^z)^2> and so T chi_z: for a free ion
+    # T chi_z = 2 e^(-D/T) / (1 + 2 e^(-D/T)) = (2/3)(1 - D/(3T) + ...) (common practice), below the Curie 2/3.
+    out = tmp_path / "scan.json"
+    assert main(["curves", "chain", "--spin", "1", "--order", "6", "--scan", "D:magnetic=0,1", "--tmin", "5",
+                 "--tmax", "10", "--points", "3", "--json", str(out)]) == 0
+    sets = json.loads(out.read_text())["sets"]
+    chi_at_10 = [s["curves"]["chi"]["estimate"][-1] * 10 for s in sets]  # T chi
+    assert chi_at_10[1] < chi_at_10[0] < 2 / 3
+    capsys.readouterr()
+    assert main(["curves", "chain", "--order", "14", "--variable", "euler:0.5", "--tmin", "1", "--points", "5",
+                 "--json", str(tmp_path / "euler.json")]) == 0
+    euler = json.loads((tmp_path / "euler.json").read_text())["curves"]["chi"]["estimate"]
+    plain = curves_from_series(compute_series("chain", order=14, use_tables=True).to_json_dict(), "pade",
+                               temperatures=np.geomspace(1, 10, 5)).curves["chi"].estimate
+    assert np.allclose(euler, plain, rtol=1e-3)
