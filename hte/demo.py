@@ -146,7 +146,7 @@ def run_demo(out_dir, *, order: int | None = None, use_table: bool = True, data_
     `files` (names from :data:`DATA_FILES`, the first a χ file), `free` and `start` (extra start values)
     shorten the job, e.g. for tests.
     """
-    from hte.cli.fit import write_outputs
+    from hte.fit_report import write_outputs
     from hte.cli.lattice import _draw_atomically, summarise
     from hte.curie_weiss import fit_curie_weiss, plot_curie_weiss
     from hte.fitting import entropy_check, fit, start_from_curie_weiss

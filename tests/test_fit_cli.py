@@ -134,12 +134,12 @@ def test_unknown_parameter_and_ratio_spelling_exit_2(chain_data, tmp_path, capsy
 
 def test_failure_while_writing_leaves_no_report(chain_data, tmp_path, monkeypatch, capsys):
     # the figure fails after the report was prepared: neither the report nor the table may appear
-    import hte.cli.fit as cli_fit
+    import hte.fit_report as fit_report
 
     def broken(result, path):
         raise RuntimeError("disk full")
 
-    monkeypatch.setattr(cli_fit, "plot_fit", broken)
+    monkeypatch.setattr(fit_report, "plot_fit", broken)
     code = main(["fit", "chain", "--order", "12", "--chi", str(chain_data), *output_options(tmp_path)])
     assert code == 1 and "disk full" in capsys.readouterr().err
     assert_nothing_written(tmp_path)
