@@ -33,6 +33,7 @@ from typing import Sequence
 import numpy as np
 
 from hte.errors import ParameterError
+from hte.exact_algebra import SingularMatrixError, gauss_jordan
 
 #: Condition number above which a floating-point Padé system is treated as singular.
 MAX_CONDITION = 1e12
@@ -325,19 +326,12 @@ def _normalised_pade(c: list, L: int, M: int) -> PadeApproximant:
 def _solve_exact(rows, rhs) -> list:
     """Gauss-Jordan elimination in Fractions; raises SingularPadeError on a singular matrix."""
     n = len(rows)
-    a = [list(map(Fraction, row)) + [Fraction(b)] for row, b in zip(rows, rhs)]
-    for col in range(n):
-        pivot = next((r for r in range(col, n) if a[r][col] != 0), None)
-        if pivot is None:
-            raise SingularPadeError("singular denominator system")
-        a[col], a[pivot] = a[pivot], a[col]
-        inv = 1 / a[col][col]
-        a[col] = [v * inv for v in a[col]]
-        for r in range(n):
-            if r != col and a[r][col] != 0:
-                factor = a[r][col]
-                a[r] = [v - factor * w for v, w in zip(a[r], a[col])]
-    return [a[r][n] for r in range(n)]
+    augmented = [list(map(Fraction, row)) + [Fraction(b)] for row, b in zip(rows, rhs)]
+    try:
+        reduced = gauss_jordan(augmented, n)
+    except SingularMatrixError:
+        raise SingularPadeError("singular denominator system") from None
+    return [reduced[r][n] for r in range(n)]
 
 
 # --- defects ----------------------------------------------------------------------------------------------

@@ -11,6 +11,8 @@ import itertools
 from fractions import Fraction
 from functools import lru_cache
 
+from hte.exact_algebra import gauss_jordan
+
 
 def add_into(target: dict, source: dict, factor=1) -> None:
     """target += factor * source (in place)."""
@@ -42,16 +44,7 @@ def _inverse_vandermonde(n_vars: int, degree: int):
                 v *= Fraction(x) ** k if k else 1
             row.append(v)
         matrix.append(row + [Fraction(int(i == j)) for j in range(size)])
-    # Gauss-Jordan elimination with exact fractions (the principal lattice is unisolvent: always invertible)
-    for col in range(size):
-        pivot = next(r for r in range(col, size) if matrix[r][col] != 0)
-        matrix[col], matrix[pivot] = matrix[pivot], matrix[col]
-        inv = 1 / matrix[col][col]
-        matrix[col] = [x * inv for x in matrix[col]]
-        for r in range(size):
-            if r != col and matrix[r][col] != 0:
-                f = matrix[r][col]
-                matrix[r] = [a - f * b for a, b in zip(matrix[r], matrix[col])]
+    gauss_jordan(matrix, size)  # the principal lattice is unisolvent: the matrix is always invertible
     inverse = tuple(tuple(row[size:]) for row in matrix)
     return tuple(points), tuple(monomials), inverse
 
