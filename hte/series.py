@@ -221,7 +221,7 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
 
 def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None, couplings=None, occupation=None,
                    anisotropy=None, per: str = "site", symbolic: bool = False, workers: int = 1, cache=None,
-                   progress: bool = False, use_tables: bool = False) -> HTSeries:
+                   progress: bool = False, use_tables: bool = False, lnz_only: bool = False) -> HTSeries:
     """The high-temperature series of a spin model on a lattice, in a few lines.
 
     Parameters
@@ -239,6 +239,8 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
         Persistent store of cluster series (None: no cache).
     use_tables : bool
         Answer from a shipped table in tables/ when one covers the request.
+    lnz_only : bool
+        Compute ln Z (and E, C, S) only; graphs whose bridges make their ln Z weight vanish are skipped.
 
     Examples
     --------
@@ -260,5 +262,6 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
         found = find_table(spec, spin_model, order)
         if found is not None:
             return HTSeries.from_table(found[0], order, lattice=spec, model=spin_model, per=per)
-    ls = expand_lattice(spec, spin_model, order, cache=cache, workers=workers, progress=progress)
+    ls = expand_lattice(spec, spin_model, order, cache=cache, workers=workers, progress=progress,
+                        quantities=("lnz",) if lnz_only else ("lnz", "m2", "m4"))
     return normalise(ls, lattice=spec, model=spin_model, per=per)
