@@ -144,7 +144,9 @@ def test_square_ising_free_energy_matches_onsager(order):
 
 @pytest.mark.slow
 def test_square_ising_free_energy_matches_onsager_to_order_14():
-    ours = compute_series("square", order=14, model="xxz", couplings=ISING_FERRO)
+    # ln Z alone (bridged graphs skipped, an exact rule); measured 1230 s on 2 loaded cores, 97 % of it the
+    # enumeration of the 4.5e8 clusters up to 14 bonds.
+    ours = compute_series("square", order=14, model="xxz", couplings=ISING_FERRO, lnz_only=True, workers=2)
     exact = in_beta(onsager_lnz(14), Fraction(1, 4))
     assert ours.coefficients["lnZ"][1:] == exact[1:]
 
