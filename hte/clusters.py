@@ -20,7 +20,7 @@ import itertools
 import os
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from fractions import Fraction
 
 import numpy as np
@@ -79,7 +79,7 @@ class ClusterCensus:
     labels: tuple[str, ...]
     classes: list[GraphClass]
     clusters_per_cell: list[int]  # index n = number of clusters with n bonds (index 0 unused, 0)
-    seconds: list[float] = field(default_factory=list)  # cumulative wall time when size n was done
+    seconds: float = 0.0  # wall time of the whole census
 
     def per_site(self, count: int) -> Fraction:
         """Convert a per-cell count to a per-site lattice constant (exact)."""
@@ -244,7 +244,7 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
     graph_classes.sort(key=lambda g: (g.n_bonds, g.n_sites, g.key))
     elapsed = time.perf_counter() - start
     return ClusterCensus(spec.name, max_bonds, spec.n_sites, tuple(spec.site_classes), tuple(spec.labels),
-                         graph_classes, [int(x) for x in per_size], [elapsed])
+                         graph_classes, [int(x) for x in per_size], elapsed)
 
 
 def count_site_animals(spec: LatticeSpec, max_sites: int) -> list[int]:

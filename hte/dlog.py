@@ -28,7 +28,7 @@ import numpy as np
 
 from hte.errors import ParameterError
 from hte.pade import (EnsembleMember, PadeApproximant, SingularPadeError, as_coefficients,
-                      froissart_doublets, multiply_series, near_diagonal_orders, pade)
+                      froissart_doublets, multiply_series, near_diagonal_orders, pade, pade_or_singular)
 
 #: Poles with |Im p| below this fraction of |p| count as real.
 REAL_AXIS_TOLERANCE = 1e-7
@@ -142,10 +142,9 @@ def dlog_pade(coefficients: Sequence, *, depth: int = 3, max_offset: int = 2, po
     members = []
     accepted = []
     for L, M in near_diagonal_orders(len(g) - 1, depth=depth, max_offset=max_offset):
-        try:
-            approximant = pade(g, L, M)
-        except SingularPadeError as exc:
-            members.append(EnsembleMember(L, M, None, [f"singular: {exc}"]))
+        approximant, singular = pade_or_singular(g, L, M)
+        if singular:
+            members.append(singular)
             continue
         estimate, defects = _singularity(f"[{L}/{M}]", approximant, pole_margin, doublet_tolerance)
         members.append(EnsembleMember(L, M, approximant, defects))

@@ -35,8 +35,8 @@ import numpy as np
 from scipy.integrate import simpson
 
 from hte.errors import ParameterError
-from hte.pade import (Band, EnsembleMember, PadeApproximant, SingularPadeError, band_from_samples,
-                      convergence_temperature, find_defects, multiply_series, near_diagonal_orders, pade,
+from hte.pade import (Band, EnsembleMember, PadeApproximant, band_from_samples, convergence_temperature,
+                      find_defects, multiply_series, near_diagonal_orders, pade_or_singular,
                       widen_with_lower_order)
 
 #: Smallest 1 + x = (e − e0)/(e_∞ − e0) used when solving for the energy at a temperature.
@@ -346,10 +346,9 @@ def interpolation_ensemble(data: EntropySeries, e0: float, low_t: LowTemperature
     g = auxiliary_series(data, e0, low_t)
     members, accepted = [], []
     for L, M in near_diagonal_orders(len(g) - 1, depth=depth, max_offset=max_offset):
-        try:
-            approximant = pade(g, L, M)
-        except SingularPadeError as exc:
-            members.append(EnsembleMember(L, M, None, [f"singular: {exc}"]))
+        approximant, singular = pade_or_singular(g, L, M)
+        if singular:
+            members.append(singular)
             continue
         interpolation = EntropyInterpolation(approximant, float(e0), data.e_inf, low_t)
         defects = interpolation.defects()

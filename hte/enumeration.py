@@ -109,7 +109,6 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     verts = np.empty(max_bonds + 2, np.int64)
     cluster = np.empty(max_bonds + 1, np.int64)
     buf = np.empty((max_bonds + 2) * (2 * max_deg * (max_bonds + 1) + 2), np.int64)
-    seg_start = np.empty(max_bonds + 2, np.int64)
     seg_end = np.empty(max_bonds + 2, np.int64)
     seg_pos = np.empty(max_bonds + 2, np.int64)
     seg_new = np.empty(max_bonds + 2, np.int64)
@@ -133,7 +132,6 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
         nv = 0
         size = 0
         buf[0] = root
-        seg_start[0] = 0
         seg_end[0] = 1
         seg_pos[0] = 0
         seg_new[0] = 1
@@ -209,7 +207,6 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                             buf[k] = f
                             k += 1
                 d += 1
-                seg_start[d] = ns
                 seg_end[d] = k
                 seg_pos[d] = ns
                 seg_new[d] = newstart

@@ -417,6 +417,14 @@ def near_diagonal_orders(order: int, *, depth: int = 3, max_offset: int = 2) -> 
     return pairs
 
 
+def pade_or_singular(coefficients, L: int, M: int):
+    """(approximant, None), or (None, the rejected EnsembleMember) when the [L/M] system is singular."""
+    try:
+        return pade(coefficients, L, M), None
+    except SingularPadeError as exc:
+        return None, EnsembleMember(L, M, None, [f"singular: {exc}"])
+
+
 def pade_ensemble(coefficients: Sequence, segment: tuple[float, float], *, depth: int = 3,
                   max_offset: int = 2, pole_margin: float = 0.02, doublet_tolerance: float = 1e-3,
                   quantity: str = "series") -> list[EnsembleMember]:
@@ -453,10 +461,9 @@ def pade_ensemble(coefficients: Sequence, segment: tuple[float, float], *, depth
                              "(at least order 2) or raise max_offset/depth")
     members = []
     for L, M in pairs:
-        try:
-            approximant = pade(c, L, M)
-        except SingularPadeError as exc:
-            members.append(EnsembleMember(L, M, None, [f"singular: {exc}"]))
+        approximant, singular = pade_or_singular(c, L, M)
+        if singular:
+            members.append(singular)
             continue
         twin = next((m for m in members if m.approximant is not None and same_function(m.approximant, approximant)),
                     None)

@@ -60,7 +60,7 @@ def run(args) -> int:
     if sys.stderr.isatty():
         print(file=sys.stderr)
     print(f"# {spec.name}: {spec.n_sites} sites per cell; labels {', '.join(spec.labels)}; "
-          f"{census.seconds[-1]:.2f} s with {workers} worker(s)")
+          f"{census.seconds:.2f} s with {workers} worker(s)")
     print(f"{'n':>3} {'clusters/site':>18} {'graph classes':>14} {'max sites':>10}")
     per_site = []
     for n in range(1, args.max_bonds + 1):
