@@ -18,8 +18,6 @@ References
 from __future__ import annotations
 
 import math
-import os
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -28,6 +26,7 @@ from scipy.optimize import least_squares
 from scipy.stats import chi2 as chi2_distribution
 
 from hte import units as lab_units
+from hte.atomic import write_atomically
 from hte.errors import DataFileError, ParameterError
 from hte.measured import Measurement, local_scatter
 
@@ -329,12 +328,5 @@ def plot_curie_weiss(result: CurieWeissResult, measurement: Measurement, path) -
     axes.set_title(f"Curie-Weiss: theta < 0 antiferromagnetic; chi0 = {result.chi0:.3g} emu/mol{note}",
                    fontsize=9)
     axes.legend(fontsize=8)
-    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=path.suffix)
-    os.close(handle)
-    try:
-        figure.savefig(temporary)
-        os.replace(temporary, path)
-    finally:
-        if os.path.exists(temporary):
-            os.remove(temporary)
+    write_atomically(path, figure.savefig)
     return path

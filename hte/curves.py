@@ -34,13 +34,12 @@ Methods:
 from __future__ import annotations
 
 import csv
-import os
-import tempfile
 from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
 
+from hte.atomic import write_text_atomically
 from hte.dlog import dlog_curve, dlog_pade
 from hte.entropy_method import LowTemperatureClass, entropy_method
 from hte.errors import ParameterError
@@ -123,21 +122,7 @@ class CurveSet:
                 band = self.curves[name]
                 row += [repr(float(band.estimate[i])), repr(float(band.lower[i])), repr(float(band.upper[i]))]
             rows.append(row)
-        _write_atomically(path, lambda handle: csv.writer(handle).writerows([header] + rows))
-
-
-def _write_atomically(path, write) -> None:
-    path = os.fspath(path)
-    directory = os.path.dirname(os.path.abspath(path))
-    handle, temporary = tempfile.mkstemp(dir=directory, prefix=".tmp-", suffix=os.path.basename(path))
-    try:
-        with os.fdopen(handle, "w", newline="") as stream:
-            write(stream)
-        os.replace(temporary, path)
-    except BaseException:
-        if os.path.exists(temporary):
-            os.remove(temporary)
-        raise
+        write_text_atomically(path, lambda handle: csv.writer(handle).writerows([header] + rows))
 
 
 # --- input ---------------------------------------------------------------------------------------------------

@@ -10,10 +10,10 @@ k_B = 1.
 from __future__ import annotations
 
 import os
-import tempfile
 
 import numpy as np
 
+from hte.atomic import write_atomically
 from hte.errors import ParameterError
 
 FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
@@ -118,13 +118,4 @@ def _limit_to_converged_range(ax, sets, quantity, transform) -> None:
 
 
 def _save_atomically(figure, path: str, fmt: str) -> None:
-    directory = os.path.dirname(os.path.abspath(path))
-    handle, temporary = tempfile.mkstemp(dir=directory, prefix=".tmp-", suffix=os.path.splitext(path)[1])
-    os.close(handle)
-    try:
-        figure.savefig(temporary, format=fmt, dpi=120)
-        os.replace(temporary, path)
-    except BaseException:
-        if os.path.exists(temporary):
-            os.remove(temporary)
-        raise
+    write_atomically(path, lambda temporary: figure.savefig(temporary, format=fmt, dpi=120))

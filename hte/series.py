@@ -16,8 +16,6 @@ Quantities (keys of :attr:`HTSeries.coefficients`), each a list c_0..c_order of 
 from __future__ import annotations
 
 import math
-import os
-import tempfile
 from dataclasses import dataclass, field
 from fractions import Fraction
 
@@ -134,21 +132,9 @@ def write_json_atomic(doc: dict, path) -> None:
     """Write JSON to `path` atomically (temporary file in the same folder, then rename)."""
     import json
 
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=folder)
-    try:
-        with os.fdopen(fd, "w") as fh:
-            json.dump(doc, fh, indent=1)
-            fh.write("\n")
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    from hte.atomic import write_text_atomically
+
+    write_text_atomically(path, lambda stream: stream.write(json.dumps(doc, indent=1) + "\n"))
 
 
 # ---------------------------------------------------------------------------------------------- assembly

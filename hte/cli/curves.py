@@ -331,7 +331,7 @@ def _write_outputs(curvesets, args, notes) -> None:
 def _write_family_csv(curvesets, path) -> None:
     import csv
 
-    from hte.curves import _write_atomically
+    from hte.atomic import write_text_atomically
 
     header = ["T"]
     columns = []
@@ -342,7 +342,7 @@ def _write_family_csv(curvesets, path) -> None:
                 header.append(f"{name}{suffix}[{tag}]")
                 columns.append(values)
     rows = [[repr(float(t))] + [repr(float(c[i])) for c in columns] for i, t in enumerate(curvesets[0].temperatures)]
-    _write_atomically(path, lambda handle: csv.writer(handle).writerows([header] + rows))
+    write_text_atomically(path, lambda handle: csv.writer(handle).writerows([header] + rows))
 
 
 def _summary(curvesets) -> None:

@@ -8,8 +8,6 @@ is the energy unit), occupations and spins.
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 
 
@@ -84,18 +82,12 @@ def _table(header, rows) -> str:
 
 def _draw_atomically(spec, path: Path) -> Path:
     """Draw into a temporary file in the target folder, then rename it onto `path`."""
+    from hte.atomic import write_atomically
     from hte.drawing import draw_lattice
     from hte.errors import ParameterError
 
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
         raise ParameterError(f"--png {path}: the folder {folder} does not exist; create it or choose another path")
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=folder)
-    os.close(handle)
-    try:
-        draw_lattice(spec, temporary)
-        os.replace(temporary, path)
-    finally:
-        if os.path.exists(temporary):
-            os.remove(temporary)
+    write_atomically(path, lambda temporary: draw_lattice(spec, temporary))
     return path
