@@ -29,6 +29,8 @@ Methods:
   only through β^(N−2)), and C then stays consistent with the E curve of the same approximants.
 * ``dlog``: Dlog-Padé of Tχ (:mod:`hte.dlog`): χ* above the highest accepted T_c, and the critical block.
 * ``entropy``: the entropy method (:mod:`hte.entropy_method`): C, S, E down to T → 0; needs e0 and low_t.
+  With a ``chiT`` series also χ*, through the microcanonical s(e, m) (:mod:`hte.entropy_susceptibility`);
+  where no approximant pair survives, χ* is the raw truncated series, listed in ``fallback``.
 """
 
 from __future__ import annotations
@@ -42,6 +44,7 @@ import numpy as np
 from hte.atomic import write_text_atomically
 from hte.dlog import dlog_curve, dlog_pade
 from hte.entropy_method import LowTemperatureClass, entropy_method
+from hte.entropy_susceptibility import entropy_susceptibility
 from hte.errors import ParameterError
 from hte.pade import (Band, PadeApproximant, VariableTransform, band_from_samples, convergence_temperature,
                       is_even, pade, pade_ensemble, widen_with_lower_order)
@@ -106,7 +109,7 @@ class CurveSet:
         out["approximants"] = self.approximants
         out["fallback"] = list(self.fallback)
         out["warnings"] = list(self.warnings)
-        for key in ("e0", "low_t", "sum_rule_max_deviation"):
+        for key in ("e0", "low_t", "chi_low_t", "sum_rule_max_deviation"):
             if key in self.metadata:
                 out[key] = self.metadata[key]
         return out
@@ -330,7 +333,8 @@ def _dlog_curves(coefficients, temperatures, *, depth, max_offset, estimate, spr
 
 
 def curves_from_series(series: dict, method: str, *, temperatures, e0: float | None = None,
-                       low_t: LowTemperatureClass | str | None = None, tolerance: float = 0.01, depth: int = 3,
+                       low_t: LowTemperatureClass | str | None = None, chi_low_t: str | None = None,
+                       tolerance: float = 0.01, depth: int = 3,
                        max_offset: int = 2, transform: VariableTransform | None = None,
                        heat_capacity_route: str = "energy", estimate: str = "median", spread: str = "minmax",
                        label: str | None = None) -> CurveSet:
@@ -346,6 +350,9 @@ def curves_from_series(series: dict, method: str, *, temperatures, e0: float | N
         Temperatures > 0 in units of the reference coupling; sorted and de-duplicated.
     e0, low_t :
         Entropy method only: ground-state energy per site, and "gapped:DELTA" or "power:ALPHA".
+    chi_low_t : str, optional
+        Entropy method with a ``chiT`` series: low-temperature law of χ, "power:KAPPA" (χ ∝ T^KAPPA, default 0)
+        or "gapped:DELTA_S" (spin gap, default the gap of `low_t`); see :mod:`hte.entropy_susceptibility`.
     tolerance : float
         Relative band half-width defining T_conv (default 1 %).
     depth, max_offset : int
@@ -389,11 +396,42 @@ def curves_from_series(series: dict, method: str, *, temperatures, e0: float | N
                                  "low-temperature class (--low-t gapped:DELTA or --low-t power:ALPHA)")
         result = entropy_method(coefficients["lnZ"], float(e0), low_t, grid, tolerance=tolerance, depth=depth,
                                 max_offset=max_offset, estimate=estimate, spread=spread)
-        curves, t_conv, fallback, warnings = result.curves, result.T_conv, [], list(result.warnings)
-        approximants = {name: {"accepted": [m.label for m in result.members if m.accepted],
-                               "rejected": {m.label: m.defects for m in result.members if not m.accepted}}
-                        for name in curves}
+        curves, t_conv, fallback, warnings = dict(result.curves), dict(result.T_conv), [], list(result.warnings)
+        approximants = {name: _member_summary(result.members) for name in curves}
         metadata = dict(metadata, e0=float(e0), low_t=str(result.low_t),
                         sum_rule_max_deviation=max(check.worst_deviation for check in result.sum_rules))
+        if "chiT" in coefficients:
+            _entropy_chi(coefficients, float(e0), result.low_t, chi_low_t, grid, tolerance, depth, max_offset,
+                         estimate, spread, curves, t_conv, approximants, fallback, warnings, metadata)
     return CurveSet(grid, method, curves, t_conv, tolerance, critical, approximants, fallback, warnings,
                     metadata, label)
+
+
+def _member_summary(members) -> dict:
+    return {"accepted": [m.label for m in members if m.accepted],
+            "rejected": {m.label: m.defects for m in members if not m.accepted}}
+
+
+def _entropy_chi(coefficients, e0, low_t, chi_low_t, grid, tolerance, depth, max_offset, estimate, spread, curves,
+                 t_conv, approximants, fallback, warnings, metadata) -> None:
+    """Add χ* of the entropy method (:mod:`hte.entropy_susceptibility`), or the raw series where it fails."""
+    try:
+        chi = entropy_susceptibility(coefficients["lnZ"], coefficients["chiT"], e0, low_t, grid,
+                                     chi_low_t=chi_low_t, tolerance=tolerance, depth=depth, chi_depth=depth + 2,
+                                     max_offset=max_offset, estimate=estimate, spread=spread)
+    except ParameterError as exc:
+        if "defects" not in str(exc):
+            raise
+        beta = 1.0 / grid
+        chi_t = np.asarray(coefficients["chiT"], dtype=float)
+        raw = beta * np.polyval(chi_t[::-1], beta)                 # χ* = β · (T χ series)
+        previous = beta * np.polyval(chi_t[-2::-1], beta)          # one order less
+        curves["chi"] = Band(raw, np.minimum(raw, previous), np.maximum(raw, previous))
+        t_conv["chi"] = convergence_temperature(grid, curves["chi"], tolerance)
+        fallback.append("chi")
+        warnings.append(f"chi: {exc}; returning the raw truncated series (band = its last two partial sums)")
+        return
+    curves["chi"], t_conv["chi"] = chi.band, chi.T_conv
+    approximants["chi"] = _member_summary(chi.members)
+    warnings.extend(chi.warnings)
+    metadata["chi_low_t"] = chi.low_t.describe(low_t)

@@ -95,7 +95,7 @@ def _reversion(series: list, order: int) -> list:
     return inverse
 
 
-def _power_series(series: list, exponent: float, order: int) -> list:
+def power_series(series: list, exponent: float, order: int) -> list:
     """Coefficients of series(x)^exponent (series[0] > 0) by the J. C. P. Miller recurrence."""
     f0 = series[0]
     out = [f0 ** exponent] + [0.0] * order
@@ -167,7 +167,7 @@ def auxiliary_series(data: EntropySeries, e0: float, low_t: LowTemperatureClass)
     one_over = [(-1.0) ** k for k in range(order + 1)]                  # 1/(1 + x)
     if low_t.kind == "power":
         a = low_t.value / (1.0 + low_t.value)
-        return multiply_series(_power_series(s_x, 1.0 / a, order), one_over, order)
+        return multiply_series(power_series(s_x, 1.0 / a, order), one_over, order)
     ratio = width / low_t.value                                           # n = ratio (1 + x)
     g = [c / ratio for c in multiply_series(s_x, one_over, order)]
     g[0] += np.log(ratio)
@@ -322,7 +322,8 @@ class EntropyMethodResult:
     warnings: list[str] = field(default_factory=list)
 
 
-def _validated(lnZ, e0, low_t) -> tuple[EntropySeries, LowTemperatureClass]:
+def validated_inputs(lnZ, e0, low_t) -> tuple[EntropySeries, LowTemperatureClass]:
+    """The series of s(e) and the parsed low-temperature class; ParameterError for a bad class, series or e0."""
     if isinstance(low_t, str):
         low_t = LowTemperatureClass.parse(low_t)
     if not isinstance(low_t, LowTemperatureClass):
@@ -391,7 +392,7 @@ def entropy_method(lnZ: Sequence, e0: float, low_t: LowTemperatureClass | str, t
         Bad e0 (above what the series itself reaches), α or Δ <= 0, a series shorter than order 4, or no
         approximant free of defects (the message suggests what to change).
     """
-    data, low_t = _validated(lnZ, e0, low_t)
+    data, low_t = validated_inputs(lnZ, e0, low_t)
     temperatures = np.asarray(temperatures, dtype=float)
     members, accepted = interpolation_ensemble(data, e0, low_t, depth=depth, max_offset=max_offset)
     if not accepted:
@@ -451,7 +452,7 @@ def entropy_scan(lnZ: Sequence, e0_values: Sequence[float], low_t_values: Sequen
     points = []
     for e0 in e0_values:
         for low_t in low_t_values:
-            data, low_t = _validated(lnZ, e0, low_t)
+            data, low_t = validated_inputs(lnZ, e0, low_t)
             members, accepted = interpolation_ensemble(data, e0, low_t, depth=depth, max_offset=max_offset)
             spread = t_conv = None
             if len(accepted) >= 2:

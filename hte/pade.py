@@ -347,28 +347,40 @@ def _near_segment(points: np.ndarray, low: float, high: float, fraction: float) 
 
 
 def find_defects(approximant: PadeApproximant, segment: tuple[float, float], *, pole_margin: float = 0.02,
-                 doublet_tolerance: float = 1e-3, doublet_region: float = 0.5) -> list[str]:
+                 doublet_tolerance: float = 1e-3, doublet_region: float = 0.5,
+                 singular_end: float | None = None) -> list[str]:
     """Reasons why `approximant` is unusable on the real interval `segment` = (low, high); [] if none.
 
     `segment` contains the expansion point x = 0 as one of its ends.  A pole p is a defect when its distance to
     the segment is at most ``pole_margin * |p|`` (on the segment, or within an angle of about pole_margin
     radians of it).  A Froissart doublet is a pole p and a zero z with |p − z| <= doublet_tolerance · max(1, |p|);
     it is a defect when its distance to the segment is at most ``doublet_region * |p|`` ("near the positive
-    real axis" for segment (0, x_max)).
+    real axis" for segment (0, x_max)).  `singular_end`, the far end of the segment where the function itself
+    may be non-analytic, exempts poles and doublets whose real part lies beyond it (approximants put poles
+    there to mimic a branch point); the caller then checks the values on the segment itself.
     """
     low, high = float(segment[0]), float(segment[1])
-    poles = approximant.poles()
+    poles = _not_beyond(approximant.poles(), singular_end)
     near = poles[_near_segment(poles, low, high, pole_margin)]
     defects = [f"pole at x = {_format_complex(p)} on or next to the physical segment [{low:.4g}, {high:.4g}]"
                for p in near]
-    return defects + froissart_doublets(approximant, segment, tolerance=doublet_tolerance, region=doublet_region)
+    return defects + froissart_doublets(approximant, segment, tolerance=doublet_tolerance, region=doublet_region,
+                                        singular_end=singular_end)
+
+
+def _not_beyond(points: np.ndarray, singular_end: float | None) -> np.ndarray:
+    """The points whose real part does not lie beyond `singular_end` (seen from x = 0); all if it is None."""
+    if singular_end is None:
+        return points
+    return points[(points.real - singular_end) * np.sign(singular_end) <= 0]
 
 
 def froissart_doublets(approximant: PadeApproximant, segment: tuple[float, float], *, tolerance: float = 1e-3,
-                       region: float = 0.5) -> list[str]:
-    """Pole-zero pairs with |p − z| <= tolerance · max(1, |p|) whose pole p lies within region·|p| of `segment`."""
+                       region: float = 0.5, singular_end: float | None = None) -> list[str]:
+    """Pole-zero pairs with |p − z| <= tolerance · max(1, |p|) whose pole p lies within region·|p| of `segment`
+    (and not beyond `singular_end`, see :func:`find_defects`)."""
     low, high = float(segment[0]), float(segment[1])
-    poles, zeros = approximant.poles(), approximant.zeros()
+    poles, zeros = _not_beyond(approximant.poles(), singular_end), approximant.zeros()
     if not poles.size or not zeros.size:
         return []
     doublets = []

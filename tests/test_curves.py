@@ -193,15 +193,21 @@ def test_dlog_method_gives_critical_point_and_susceptibility_above_it():
     assert set(document["critical"]) >= {"T_c", "T_c_err", "gamma", "gamma_err"}
 
 
-def test_entropy_method_curves_have_no_chi_and_pass_the_sum_rules():
+def test_entropy_method_curves_include_chi_and_pass_the_sum_rules():
+    # chi from s(e, m) (hte.entropy_susceptibility): for the dimer T chi = (2/3)(e - e0) exactly (see
+    # heisenberg_dimer), so the spin gap equals the gap (the default of chi_low_t).
     document = {"lattice": "dimer", "per": "site", "series": heisenberg_dimer()}
     curves = curves_from_series(document, "entropy", temperatures=TEMPERATURES, e0=-0.375, low_t="gapped:1")
-    assert set(curves.curves) == {"C", "S", "E"}
+    assert set(curves.curves) == {"chi", "C", "S", "E"}
     exact = dimer_exact(curves.temperatures)
     np.testing.assert_allclose(curves.curves["C"].estimate, exact["C"], rtol=1e-3)
+    np.testing.assert_allclose(curves.curves["chi"].estimate, exact["chi"], rtol=1e-3)
     data = curves.to_json_dict()
-    assert data["lattice"] == "dimer" and data["method"] == "entropy" and "chi" not in data["curves"]
-    assert data["sum_rule_max_deviation"] < 1e-6
+    assert data["lattice"] == "dimer" and data["method"] == "entropy"
+    assert data["sum_rule_max_deviation"] < 1e-6 and data["chi_low_t"] == "spin gap 1"
+    without_chi = {"lattice": "dimer", "per": "site", "series": {"lnZ": heisenberg_dimer()["lnZ"]}}
+    assert "chi" not in curves_from_series(without_chi, "entropy", temperatures=TEMPERATURES, e0=-0.375,
+                                           low_t="gapped:1").curves
 
 
 def test_json_document_follows_the_conventions(tmp_path):

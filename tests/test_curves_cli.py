@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from fractions import Fraction
 
 import numpy as np
 import pytest
@@ -55,6 +56,36 @@ def test_heisenberg_chain_entropy_method_heat_capacity_maximum_matches_bethe_ans
     assert value == pytest.approx(0.3497, rel=0.01)
     assert t_max == pytest.approx(0.4803, rel=0.02)
     assert cs.metadata["sum_rule_max_deviation"] < 1e-6
+
+
+def test_entropy_method_command_gives_the_susceptibility_too(tmp_path, capsys):
+    # chi* maximum 0.14693 at T = 0.6409 J (Johnston et al. 2000, Bethe ansatz), now from s(e, m); a computed
+    # --lnz-only series has no chiT, so chi is left out.
+    out = tmp_path / "entropy.json"
+    assert main(["curves", "chain", "--order", "14", "--method", "entropy", "--e0", str(E0_CHAIN), "--low-t",
+                 "power:1", "--tmin", "0.5", "--tmax", "0.8", "--points", "61", "--json", str(out)]) == 0
+    doc = json.loads(out.read_text())
+    chi = np.array(doc["curves"]["chi"]["estimate"])
+    assert chi.max() == pytest.approx(0.14693, rel=0.01)
+    assert doc["T"][int(np.argmax(chi))] == pytest.approx(0.6409, rel=0.02)
+    assert doc["chi_low_t"] == "chi ~ T^0" and doc["approximants"]["chi"]["accepted"]
+    assert main(["curves", "chain", "--order", "8", "--no-tables", "--method", "entropy", "--e0", str(E0_CHAIN),
+                 "--low-t", "power:1", "--lnz-only", "--points", "20", "--json", str(out)]) == 0
+    assert "chi" not in json.loads(out.read_text())["curves"]
+
+
+def test_entropy_susceptibility_without_survivors_falls_back_to_the_raw_series():
+    # A T chi series spoiled on purpose (beta^2 coefficient -5 instead of the chain's 0) makes T chi(e)
+    # change sign on [e0, e_inf]: no approximant of K is acceptable, so chi is the raw truncated series.
+    series = compute_series("chain", order=10, use_tables=True).to_json_dict()
+    series["series"]["chiT"][2] = "-5"
+    temperatures = np.array([2.0, 5.0])
+    cs = curves_from_series(series, "entropy", temperatures=temperatures, e0=E0_CHAIN, low_t="power:1")
+    assert "chi" in cs.fallback and any("raw truncated series" in w for w in cs.warnings)
+    chi_t = [float(Fraction(c)) for c in series["series"]["chiT"]]
+    raw = [sum(c / t ** (n + 1) for n, c in enumerate(chi_t)) for t in temperatures]
+    np.testing.assert_allclose(cs.curves["chi"].estimate, raw, rtol=1e-12)
+    assert set(cs.curves) == {"chi", "C", "S", "E"}
 
 
 def _ring_thermodynamics(length, temperatures):
@@ -126,6 +157,8 @@ def test_scan_of_an_occupation_gives_one_curve_per_value(tmp_path, capsys):
     (["--method", "entropy", "--e0", "-0.44", "--low-t", "power:-1"], "power"),
     (["--method", "entropy", "--e0", "0.5", "--low-t", "power:1"], "e0"),
     (["--method", "entropy", "--e0", "-0.44", "--low-t", "warm:1"], "write gapped:DELTA"),
+    (["--method", "entropy", "--e0", "-0.44", "--low-t", "power:1", "--chi-low-t", "gapped:1"], "same kind"),
+    (["--method", "entropy", "--e0", "-0.44", "--low-t", "power:1", "--chi-low-t", "power:-3"], ">= -1"),
     (["--scan", "J7=0,1"], "not a coupling label"),
 ])
 def test_bad_curve_requests_exit_2_with_a_message(tmp_path, extra, message, capsys):

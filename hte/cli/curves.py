@@ -2,8 +2,8 @@
 
 Input is a series JSON file (from `hte series --json`) or a lattice with the series options.  Methods: pade
 (Padé ensembles), dlog (Dlog-Padé: critical point and exponent), entropy (the entropy method; needs --e0 and
---low-t; ranges such as --e0 -0.45:-0.40:6 scan them), nlce (numerical linked clusters; lattice input) and
-compare (overlay of the routes, flags where they disagree).  --scan NAME=VALUES varies one coupling or
+--low-t; ranges such as --e0 -0.45:-0.40:6 scan them; chi too, shaped by --chi-low-t, unless --lnz-only),
+nlce (numerical linked clusters; lattice input) and compare (overlay of the routes, flags where they disagree).  --scan NAME=VALUES varies one coupling or
 site-class occupation (e.g. --scan J2=0,0.1,0.2 or --scan interlayer=0:0.2:5) from one symbolic series, or
 the single-ion anisotropy of a class (--scan D:magnetic=0:1:3, one series per value).
 Temperatures are in units of the reference coupling; below T_conv curves are estimates, not predictions.
@@ -27,6 +27,9 @@ def add_arguments(parser) -> None:
                         help="entropy method: ground-state energy per site (or a scan range A:B:N)")
     parser.add_argument("--low-t", default=None,
                         help="entropy method: gapped:DELTA or power:ALPHA (C ~ T^ALPHA); ranges power:A:B:N scan")
+    parser.add_argument("--chi-low-t", default=None, metavar="KIND:VALUE",
+                        help="entropy method, chi: power:KAPPA (chi ~ T^KAPPA at low T; default 0, a finite chi(0)) "
+                             "or gapped:DELTA_S (spin gap; default the --low-t gap)")
     parser.add_argument("--tmin", type=float, default=0.05, help="lowest temperature (units of the coupling)")
     parser.add_argument("--tmax", type=float, default=10.0, help="highest temperature")
     parser.add_argument("--points", type=int, default=200, help="number of temperatures (geometric grid)")
@@ -99,8 +102,6 @@ def _series_document(args) -> dict:
         return load_series_document(args.lattice)
     from hte.cli.series import series_from_args
 
-    if args.method == "entropy":
-        args.lnz_only = True  # the entropy method uses ln Z alone
     return series_from_args(args, default_order=12).to_json_dict()
 
 
@@ -128,7 +129,8 @@ def _one_route(method, doc, args, grid, label=None):
     if method == "entropy":
         e0_values, classes = _entropy_options(args)
         return curves_from_series(doc, "entropy", temperatures=grid, e0=e0_values[0], low_t=classes[0],
-                                  tolerance=args.tolerance, label=label or f"entropy e0={e0_values[0]:g} {classes[0]}")
+                                  chi_low_t=args.chi_low_t, tolerance=args.tolerance,
+                                  label=label or f"entropy e0={e0_values[0]:g} {classes[0]}")
     transform = _transform(args) if method == "pade" else None
     return curves_from_series(doc, method, temperatures=grid, tolerance=args.tolerance, transform=transform,
                               label=label or method)
@@ -252,7 +254,7 @@ def _scan(args, grid):
         if method == "entropy":
             e0_values, classes = _entropy_options(args)
             cs = curves_from_series(doc, "entropy", temperatures=grid, e0=e0_values[0], low_t=classes[0],
-                                    tolerance=args.tolerance, label=f"{name} = {value:g}")
+                                    chi_low_t=args.chi_low_t, tolerance=args.tolerance, label=f"{name} = {value:g}")
         else:
             cs = curves_from_series(doc, method, temperatures=grid, tolerance=args.tolerance,
                                     label=f"{name} = {value:g}")
