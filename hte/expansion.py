@@ -13,8 +13,10 @@ site class c.  A graph with E bonds has W = O(beta^E), so clusters of up to `ord
 Numeric mode: couplings are exact rationals; bonds of zero coupling and sites of zero occupation are dropped
 before enumeration; the physical graph (vertices coloured by (S, D), edges by (Jxy, Jz) values) keys the
 weight, so labels with equal values share weights.  Symbolic mode: every labelled bond is kept; the weight of
-a class is a polynomial in the coupling symbols of its bonds, obtained exactly by evaluating numeric weights on
-the principal lattice of integer points and interpolating (:mod:`hte.polynomial`).
+a class is a polynomial in the coupling symbols of its bonds, obtained exactly by evaluating numeric weights at
+integer points and interpolating (:mod:`hte.polynomial`).  Since every bond enters every term of a linked
+weight, a class of E bonds needs only the points of degree order - E (:func:`plan_class`): one evaluation for
+the largest classes.
 
 References
 ----------
@@ -34,11 +36,11 @@ from fractions import Fraction
 import sympy
 
 from hte.canonical import canonical_graph, key_to_graph
-from hte.clusters import ClusterCensus, enumerate_clusters, subgraph_counts
+from hte.clusters import ClusterCensus, GraphClass, enumerate_clusters, subgraph_counts
 from hte.executors import run_jobs
 from hte.graph import ColouredGraph, count_bridges
 from hte.models import SpinModel
-from hte.polynomial import add_into, interpolate, interpolation_points
+from hte.polynomial import add_into, interpolate, interpolation_points, lattice_size
 
 QUANTITIES = ("lnz", "m2", "m4")
 CACHE_FORMAT = "raw-v1"
@@ -243,6 +245,160 @@ def site_graph(value) -> ValuedGraph:
     return make_valued(1, [value], [])
 
 
+# ---------------------------------------------------------------------------------------------- symbolic weights
+_GENERAL = object()  # marks a bond whose coupling is not a rational multiple of one symbol
+
+
+def _bond_symbol(coupling):
+    """The symbol s when the bond's (Jxy, Jz) = (a s, c s) with rationals a, c (one of them may be 0); None when
+    both parts are numbers; ``_GENERAL`` otherwise (two symbols, a symbol next to a nonzero number, or an
+    expression that is not a rational multiple of one symbol)."""
+    symbols, number = set(), False
+    for part in (coupling.xy, coupling.z):
+        if not _is_symbolic(part):
+            number = number or part != 0
+            continue
+        coef, rest = part.as_coeff_Mul()
+        if not (isinstance(rest, sympy.Symbol) and coef.is_Rational):
+            return _GENERAL
+        symbols.add(rest)
+    if not symbols:
+        return None
+    return symbols.pop() if len(symbols) == 1 and not number else _GENERAL
+
+
+@dataclass(frozen=True)
+class ClassPlan:
+    """Where the weight of one graph class is evaluated numerically and how its polynomial is rebuilt.
+
+    Built by :func:`plan_class`, whose docstring derives the scheme.
+
+    Attributes
+    ----------
+    graph_class : GraphClass
+    evaluations : tuple of ValuedGraph
+        The class with numeric couplings, one per interpolation point.
+    points : tuple of tuples
+        Values of the ``free`` symbols at each evaluation (``anchor``, if any, is 1 throughout).
+    free : tuple of sympy.Symbol
+        The coupling symbols that vary over the points.
+    anchor : sympy.Symbol or None
+        The symbol held at 1 when the weight is homogeneous in the coupling symbols (no numeric energy).
+    bond_powers : tuple of (sympy.Symbol, int) or None
+        (s, e_s): e_s bonds of the class carry a coupling proportional to s; None when the general scheme is used.
+    order : int
+    """
+
+    graph_class: GraphClass
+    evaluations: tuple
+    points: tuple
+    free: tuple
+    anchor: object
+    bond_powers: tuple | None
+    order: int
+
+    def weight_polynomial(self, n: int, values, variables) -> dict:
+        """The beta^n coefficient of the class's linked weight over `variables` (exponent tuples -> Fraction),
+        from its values at the evaluations (``values[i]`` belongs to ``evaluations[i]``)."""
+        n_bonds = self.graph_class.n_bonds
+        if self.bond_powers is None:
+            degree, offset, powers = n, 0, {}
+        else:
+            degree, offset, powers = n - n_bonds, 1, dict(self.bond_powers)
+            if degree < 0:
+                if any(values):
+                    raise AssertionError(f"a linked weight with {n_bonds} bonds has a beta^{n} term")
+                return {}
+        count = lattice_size(len(self.free), degree)
+        scaled = values[:count]
+        if powers:
+            scaled = [v / _monomial_value(point, self.free, powers) for v, point in zip(scaled, self.points)]
+        local = interpolate(len(self.free), degree, scaled, offset)
+        out = {}
+        for mono, c in local.items():
+            exps = [0] * len(variables)
+            for s, k in zip(self.free, mono):
+                exps[variables.index(s)] += k
+            if self.anchor is not None:
+                rest = degree - sum(mono)
+                if rest < 0:
+                    raise AssertionError("homogeneous interpolation produced a term above the degree")
+                exps[variables.index(self.anchor)] += rest
+            for s, e in powers.items():
+                exps[variables.index(s)] += e
+            out[tuple(exps)] = c
+        return out
+
+
+def _monomial_value(point, free, powers) -> int:
+    value = 1
+    for s, x in zip(free, point):
+        value *= x ** powers.get(s, 0)
+    return value
+
+
+def plan_class(graph_class: GraphClass, couplings, vertex_values, order: int) -> ClassPlan:
+    r"""Choose the numeric evaluations from which the symbolic weight of `graph_class` is rebuilt exactly.
+
+    ``couplings[i]`` is the :class:`~hte.models.Coupling` of the class's i-th edge, ``vertex_values[v]`` the
+    (S, D) of vertex v (numbers: hte.models has no symbolic spins or anisotropies).
+
+    Derivation.  Give every bond b its own parameters (Jxy_b, Jz_b) and every site its D_i.  The beta^n
+    coefficient of the cluster series P(G) (ln Z or a cumulant of M at h = 0) is a polynomial in them,
+    homogeneous of degree n (the n-th term of exp(-beta H) has n factors of H).  The subtraction
+    W(G) = P(G) - sum_g c(g, G) W(g) - sum_v W(v) is the inversion over bond subsets: the terms of P(G) that
+    miss bond b are those of P(G - b), which is additive over its connected parts and is cancelled by the
+    subgraph and site weights; so every term of W_n(G) has degree k_b >= 1 in the parameters of every bond b.
+    Now let every bond be *numeric* (both parts rational) or *proportional*: (Jxy_b, Jz_b) = (a_b s, c_b s) for
+    one symbol s and rationals a_b, c_b.  A term then carries s^(k_b) from each proportional bond, so
+    W_n = prod_s s^(e_s) Q_n, with e_s the number of bonds proportional to s and Q_n a polynomial.  Its total
+    degree in the symbols is n minus the degree in numeric parameters, which is at least the number of numeric
+    bonds; removing the factor leaves
+
+        deg Q_n <= n - E,   E = number of bonds of the class.
+
+    Without numeric energy (no numeric bond, D = 0 on every site of the class) W_n and Q_n are homogeneous, of
+    degrees n and n - E, so Q_n is fixed by its values at s_0 = 1 (s_0 the first symbol, the ``anchor``):
+    Q_n(s) = s_0^(n-E) Q_n(1, s_1/s_0, ...), a polynomial of degree <= n - E in the other ("free") symbols.
+    Hence W is evaluated at the points x = p + (1, ..., 1), p on the principal lattice of degree order - E in
+    the free symbols (no coordinate is zero, so prod x_s^(e_s) can be divided out), and Q_n is interpolated
+    with degree n - E from the first C(n - E + f, f) points (:mod:`hte.polynomial`).  A class of E = order
+    bonds needs one evaluation, at x = (1, ..., 1), instead of C(order + f, f).
+
+    General scheme, used when some bond is neither numeric nor proportional (XXZ with Jxy and Jz different
+    symbols, a symbol next to a nonzero number on one bond, an expression that is not a rational multiple of
+    one symbol): W is evaluated on the principal lattice of degree `order` from 0 and W_n, of degree <= n in the
+    free symbols (homogeneous of degree n with the anchor when there is no numeric energy), is interpolated
+    from its first C(n + f, f) points.
+    """
+    g = graph_class.graph
+    present = sorted({s for c in couplings for part in (c.xy, c.z) if _is_symbolic(part) for s in part.free_symbols},
+                     key=str)
+    numeric_energy = any(d != 0 for _, d in vertex_values) or any(
+        not _is_symbolic(part) and part != 0 for c in couplings for part in (c.xy, c.z))
+    anchor = present[0] if present and not numeric_energy else None
+    free = tuple(present[1:] if anchor is not None else present)
+    bond_symbols = [_bond_symbol(c) for c in couplings]
+    if any(s is _GENERAL for s in bond_symbols):
+        bond_powers = None
+        points = interpolation_points(len(free), order)
+    else:
+        counts: dict = {}
+        for s in bond_symbols:
+            if s is not None:
+                counts[s] = counts.get(s, 0) + 1
+        bond_powers = tuple(sorted(counts.items(), key=lambda item: str(item[0])))
+        points = interpolation_points(len(free), order - g.n_edges, offset=1)
+    evaluations = []
+    for point in points:
+        values = dict(zip(free, point))
+        if anchor is not None:
+            values[anchor] = 1
+        edges = [(u, v, (_evaluate(c.xy, values), _evaluate(c.z, values))) for (u, v, _), c in zip(g.edges, couplings)]
+        evaluations.append(make_valued(g.n_vertices, list(vertex_values), edges))
+    return ClassPlan(graph_class, tuple(evaluations), tuple(points), free, anchor, bond_powers, order)
+
+
 # ---------------------------------------------------------------------------------------------- lattice sum
 @dataclass
 class LatticeSeries:
@@ -300,9 +456,10 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     spec = spec.without_classes([c for c, p in model.occupation.items() if p == 0])
 
     symbols = set()
-    for c in model.couplings.values():
-        for part in (c.xy, c.z):
-            if isinstance(part, sympy.Basic) and not part.is_number:
+    for label, c in model.couplings.items():
+        for name, part in (("xy", c.xy), ("z", c.z)):
+            if _is_symbolic(part):
+                _check_linear_form(part, f"{label}.{name}")
                 symbols |= part.free_symbols
     coupling_vars = sorted(symbols, key=str)
     occ_vars = sorted({p for p in model.occupation.values() if isinstance(p, sympy.Basic) and not p.is_number},
@@ -330,41 +487,17 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
         return (model.spin[name], model.anisotropy.get(name, Fraction(0)))
 
     # ---- which valued graphs are needed
-    plans = []  # (graph class, list of (point, ValuedGraph)), n_vars, homogeneous, var indices
+    plans = []
     needed: dict[str, ValuedGraph] = {}
     for gc in classes:
         g = gc.graph
         if book.lnz_only and g.n_edges + count_bridges(g) > order:
             continue  # its ln Z weight vanishes to this order (WeightBook.negligible)
-        present = []
-        for _, _, col in g.edges:
-            cpl = model.couplings[labels[col]]
-            for part in (cpl.xy, cpl.z):
-                if isinstance(part, sympy.Basic) and not part.is_number:
-                    for s in sorted(part.free_symbols, key=str):
-                        if s not in present:
-                            present.append(s)
-        present.sort(key=str)
-        numeric_energy = any(vertex_value(c)[1] != 0 for c in g.vertex_colours) or any(
-            not _is_symbolic(model.couplings[labels[col]].xy) and model.couplings[labels[col]].xy != 0
-            or not _is_symbolic(model.couplings[labels[col]].z) and model.couplings[labels[col]].z != 0
-            for _, _, col in g.edges)
-        homogeneous = bool(present) and not numeric_energy
-        n_free = len(present) - 1 if homogeneous else len(present)
-        points = interpolation_points(n_free, order)
-        evaluations = []
-        for point in points:
-            values = dict(zip(present[1:] if homogeneous else present, point))
-            if homogeneous:
-                values[present[0]] = 1
-            edges = []
-            for u, v, col in g.edges:
-                cpl = model.couplings[labels[col]]
-                edges.append((u, v, (_evaluate(cpl.xy, values), _evaluate(cpl.z, values))))
-            vg = make_valued(g.n_vertices, [vertex_value(c) for c in g.vertex_colours], edges)
+        plan = plan_class(gc, [model.couplings[labels[col]] for _, _, col in g.edges],
+                          [vertex_value(c) for c in g.vertex_colours], order)
+        for vg in plan.evaluations:
             needed.setdefault(vg.key, vg)
-            evaluations.append(vg.key)
-        plans.append((gc, evaluations, present, homogeneous, n_free))
+        plans.append(plan)
     for name in site_classes:
         if spec.sites_of_class(name):
             vg = site_graph(vertex_value(site_classes.index(name)))
@@ -390,16 +523,15 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     # ---- lattice sum
     t2 = time.perf_counter()
     terms = {q: [dict() for _ in range(order + 1)] for q in quantities}
-    for gc, evaluations, present, homogeneous, n_free in plans:
-        dil = _dilution_factor(model, site_classes, gc.graph, variables)
+    for plan in plans:
+        dil = _dilution_factor(model, site_classes, plan.graph_class.graph, variables)
         for q in quantities:
             for n in range(order + 1):
-                values = [book.weight(k)[q][n] for k in evaluations]
+                values = [book.weight(vg.key)[q][n] for vg in plan.evaluations]
                 if not any(values):
                     continue
-                poly_local = interpolate(n_free, order, values)
-                poly = _lift(poly_local, present, homogeneous, n, variables)
-                add_into(terms[q][n], _times(poly, dil), gc.per_cell)
+                poly = plan.weight_polynomial(n, values, variables)
+                add_into(terms[q][n], _times(poly, dil), plan.graph_class.per_cell)
     site_counts = {}
     for name in site_classes:
         n_c = len(spec.sites_of_class(name))
@@ -423,6 +555,21 @@ def _is_symbolic(x) -> bool:
     return isinstance(x, sympy.Basic) and not x.is_number
 
 
+def _check_linear_form(part, where: str) -> None:
+    """Symbolic couplings must be rational linear forms in the symbols (J2, 2*J1, J1 - J2/2): the weights are
+    then polynomials of degree <= n at beta^n, homogeneous without numeric energies (see :func:`plan_class`)."""
+    from hte.errors import ParameterError
+
+    try:
+        poly = sympy.Poly(part, *sorted(part.free_symbols, key=str))
+    except sympy.PolynomialError:
+        poly = None
+    if poly is None or poly.total_degree() != 1 or not poly.is_homogeneous or not all(
+            c.is_Rational for c in poly.coeffs()):
+        raise ParameterError(f"coupling {where} = {part}: a symbolic coupling must be a symbol or a linear "
+                             "combination of symbols with rational coefficients (such as J2, 2*J1 or J1 - J2/2)")
+
+
 def _evaluate(part, values) -> Fraction:
     if isinstance(part, Fraction):
         return part
@@ -431,22 +578,3 @@ def _evaluate(part, values) -> Fraction:
     if _is_symbolic(part):
         return Fraction(str(part.subs(values)))
     return Fraction(str(part))
-
-
-def _lift(poly_local: dict, present, homogeneous: bool, degree: int, variables) -> dict:
-    """Map a polynomial in the graph's own free variables to exponent tuples over all `variables`."""
-    out = {}
-    free = present[1:] if homogeneous else present
-    for mono, c in poly_local.items():
-        exps = [0] * len(variables)
-        for s, k in zip(free, mono):
-            exps[variables.index(s)] += k
-        if homogeneous:
-            rest = degree - sum(mono)
-            if rest < 0:
-                if c:
-                    raise AssertionError("homogeneous interpolation produced a term above the order")
-                continue
-            exps[variables.index(present[0])] += rest
-        out[tuple(exps)] = out.get(tuple(exps), 0) + c
-    return out
