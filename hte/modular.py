@@ -230,3 +230,59 @@ def _weighted_overlap(left, right, column_weight, start, width, modulus, inverse
         term = _reduce(column_sums[c], modulus, inverse) * column_weight[start + c]
         total = _reduce(total + _reduce(term, modulus, inverse), modulus, inverse)
     return total
+
+
+@njit(cache=True)
+def power_diagonals_mod(indptr, indices, values, row_weight, columns, column_weight, order, prime, block):
+    r"""Diagonal elements of powers of a sparse integer matrix, one row per column, modulo ``prime``.
+
+    Returns d[c, k] = column_weight[c] sum_a row_weight[a] (A^i)_{ab} (A^j)_{ab} mod prime, b = columns[c],
+    k = i + j (i = ceil(k/2), j = floor(k/2)), k = 0..order, as int64 of shape (len(columns), order + 1).  With
+    the weights of the integer gauge (row_weight = c^2, column_weight = c^{-2}, see :func:`power_traces_mod`)
+    d[c, k] = (A^k)_{bb} mod prime; summing the rows gives the result of :func:`power_traces_mod`, and weighting
+    them by a diagonal operator O gives Tr(O A^k).  Same arguments, exactness and cost as
+    :func:`power_traces_mod`; the output takes len(columns) * (order + 1) int64.
+    """
+    dim = indptr.shape[0] - 1
+    modulus = float(prime)
+    inverse = 1.0 / modulus
+    n_columns = columns.shape[0]
+    diagonals = np.zeros((n_columns, order + 1))
+    width_max = max(1, min(block, n_columns))
+    current = np.empty((dim, width_max))
+    following = np.empty((dim, width_max))
+    weighted = np.empty((dim, width_max))
+    unit_rows = np.all(row_weight == 1.0)
+    for start in range(0, n_columns, width_max):
+        width = min(width_max, n_columns - start)
+        current[:, :] = 0.0
+        for c in range(width):
+            current[columns[start + c], c] = 1.0
+        for power in range(order // 2 + 1):
+            if unit_rows:
+                weighted[:, :width] = current[:, :width]
+            else:
+                for a in range(dim):
+                    for c in range(width):
+                        weighted[a, c] = _reduce(row_weight[a] * current[a, c], modulus, inverse)
+            _column_overlaps(current, weighted, column_weight, start, width, modulus, inverse, diagonals, 2 * power)
+            if 2 * power + 1 > order:
+                break
+            _sparse_times_block(indptr, indices, values, current, following, width, modulus, inverse)
+            _column_overlaps(following, weighted, column_weight, start, width, modulus, inverse, diagonals,
+                             2 * power + 1)
+            current, following = following, current
+    return diagonals.astype(np.int64)
+
+
+@njit(cache=True)
+def _column_overlaps(left, right, column_weight, start, width, modulus, inverse, out, k):
+    """out[start + c, k] = column_weight[start + c] sum_a left[a, c] right[a, c] mod prime, c < width."""
+    dim = left.shape[0]
+    column_sums = np.zeros(width)
+    for a in range(dim):
+        for c in range(width):
+            column_sums[c] += _reduce(left[a, c] * right[a, c], modulus, inverse)  # < p each; dim * p < 2**52
+    for c in range(width):
+        term = _reduce(column_sums[c], modulus, inverse) * column_weight[start + c]
+        out[start + c, k] = _reduce(term, modulus, inverse)
