@@ -1,0 +1,215 @@
+r"""The bridge factorisation: linked weights of T chi and M4 for top-order graphs with a bridge, without diagonalisation.
+
+Convention (CONVENTIONS.md): H = H0 - h M, H0 = sum_b [Jxy_b (S^x S^x + S^y S^y) + Jz_b S^z S^z] + sum_i D_i (S^z_i)^2,
+M = sum_i S^z_i, k_B = g mu_B = 1; ln Z(beta, h) = ln Z(beta, 0) + sum_k (beta h)^k / k! kappa_k with
+kappa_2 = m2 = <M^2> (= T chi) and kappa_4 = m4 = <M^4> - 3<M^2>^2 at h = 0.
+
+Derivation.  Let b = (a, c) be a bridge of the connected graph G: removing it leaves A (containing a) and B
+(containing c), and H0 = H_A + H_B + V with V = Jxy_b (S^x_a S^x_c + S^y_a S^y_c) + Jz_b S^z_a S^z_c.
+
+1. To first order in V, ln Z(beta, h) of G is ln Z_A + ln Z_B - beta <V>_h: the first-order term of
+   ln Tr e^{-beta (H' + V)} is -int_0^beta <V(tau)> dtau = -beta <V> (cyclicity of the trace), H' = H_A + H_B - h M.
+2. In the product state of A and B, <V>_h = Jz_b <S^z_a>_{A,h} <S^z_c>_{B,h}; the x and y parts vanish because
+   H_A - h M_A commutes with rotations about z (U(1)).
+3. With x = beta h, H_A conserving M_A, <S^z_a>_{A,h} = sum_{k odd} x^k / k! u_k(a), u_1 = <M_A S^z_a>,
+   u_3 = <M_A^3 S^z_a> - 3 <M_A^2><M_A S^z_a> (joint cumulants at h = 0; :mod:`hte.rooted_series`).
+   Collecting x^2/2! and x^4/4!, the parts of m2 and m4 linear in J_b are
+       m2:  -2 beta Jz_b u_1^A(a) u_1^B(c),       m4:  -4 beta Jz_b [u_1^A(a) u_3^B(c) + u_3^A(a) u_1^B(c)].
+4. The linked weight is the inclusion-exclusion W_G = sum_{S subset of E(G)} (-1)^{|E|-|S|} P(G_S) over bond
+   subsets, G_S keeping all vertices.  The terms without J_b cancel between S and S + b.  In the J_b-linear
+   part the subset splits into S_A and S_B, and u_k on (V_A, S_A) depends only on the component of a (a
+   correlation with a disconnected part factorises into <S^z> = 0), so the sum factorises into
+   -2 beta Jz_b U_1^A(a) U_1^B(c), with the ROOTED linked weight
+       U_k^A(a) = sum_{S_A subset of E(A)} (-1)^{|E(A)|-|S_A|} u_k(component of a in S_A, a),
+   which contains every bond of A at least once and so starts at beta^{E(A)}.  Terms with J_b^2 or higher have
+   degree >= (E - 1) + 2 = E + 1 in the couplings, hence start at beta^{E+1}.
+5. So for a graph with E = order bonds and a bridge, to beta^order:
+       W_G(m2) = -2 Jz_b U_1^A(a)[beta^{E_A}] U_1^B(c)[beta^{E_B}] beta^E,
+       W_G(m4) = -4 Jz_b (U_1^A U_3^B + U_3^A U_1^B)[top coefficients] beta^E,   E = E_A + E_B + 1,
+   all lower coefficients vanish, and W_G(ln Z) = 0 (a bridge appears twice in ln Z: beta^{E + bridges}).
+
+The rooted linked weights come from rooted subgraph subtraction (the Moebius inversion of the sum above):
+U(A, a) = u(A, a) - sum_{A'} c(A', A) U(A', a) - u(a alone), over the connected proper rooted subgraphs A' of
+A that contain a, with c their embedding counts.  A rooted graph is a valued graph whose root carries a
+distinct vertex value (S, D, 1) against (S, D, 0) elsewhere, so canonical forms key rooted classes.  The
+top coefficients do not depend on the anisotropies D (a term with D has one coupling too many), but the
+rooted series are used as computed, with their D.
+
+Chain check (spin 1/2, J = 1): the single bond (A, B single sites, U_1(site) = S(S+1)/3 = 1/4) has
+W(m2) = -2 (1/4)(1/4) beta = -beta/8 + O(beta^2).  The 2-bond path a-b-c cut at (a, b) has A = {a} and B the
+bond (b, c) rooted at b, whose u_1 = <S^z_b S^z_b> + <S^z_b S^z_c> = 1/4 - beta/16 + ..., so
+U_1^B[beta] = -1/16 and W(m2) = -2 (1/4)(-1/16) beta^2 = +beta^2/32.  With one bond and one 2-bond path per
+site and the bond's own beta^2 term -1/32, the chain's T chi has a zero beta^2 coefficient, as its exact
+series has.
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+from hte.canonical import key_to_graph
+from hte.clusters import subgraph_counts
+from hte.expansion import QUANTITIES, ValuedGraph, make_valued
+
+ROOT, OTHER = 1, 0  # third entry of a rooted vertex value (S, D, mark)
+
+
+def rooted_valued(vg: ValuedGraph, root: int) -> ValuedGraph:
+    """The valued graph `vg` with vertex `root` marked (vertex values (S, D, 1) at the root, (S, D, 0) elsewhere)."""
+    values = [vg.vertex_values[c] + ((ROOT if v == root else OTHER),) for v, c in enumerate(vg.graph.vertex_colours)]
+    return make_valued(vg.graph.n_vertices, values, [(u, v, vg.edge_values[c]) for u, v, c in vg.graph.edges])
+
+
+def unrooted(rvg: ValuedGraph) -> ValuedGraph:
+    """The valued graph of a rooted one with the mark dropped."""
+    g = rvg.graph
+    return make_valued(g.n_vertices, [rvg.vertex_values[c][:2] for c in g.vertex_colours],
+                       [(u, v, rvg.edge_values[c]) for u, v, c in g.edges])
+
+
+def _root_of(rvg: ValuedGraph) -> int:
+    return next(v for v, c in enumerate(rvg.graph.vertex_colours) if rvg.vertex_values[c][2] == ROOT)
+
+
+def _split(vg: ValuedGraph, bridge: int) -> tuple[ValuedGraph, ValuedGraph, Fraction] | None:
+    """The two rooted halves (A, a) and (B, c) left by removing edge number `bridge`, and its Jz; None if the
+    edge is not a bridge."""
+    g = vg.graph
+    a, c, colour = g.edges[bridge]
+    adjacency = [[] for _ in range(g.n_vertices)]
+    for k, (u, v, _) in enumerate(g.edges):
+        if k != bridge:
+            adjacency[u].append(v)
+            adjacency[v].append(u)
+    side, stack = {a}, [a]
+    while stack:
+        for w in adjacency[stack.pop()]:
+            if w not in side:
+                side.add(w)
+                stack.append(w)
+    if c in side:
+        return None
+    halves = []
+    for root, members in ((a, sorted(side)), (c, sorted(set(range(g.n_vertices)) - side))):
+        index = {v: i for i, v in enumerate(members)}
+        values = [vg.vertex_values[g.vertex_colours[v]] + ((ROOT if v == root else OTHER),) for v in members]
+        edges = [(index[u], index[v], vg.edge_values[col]) for u, v, col in g.edges if u in index and v in index]
+        halves.append(make_valued(len(members), values, edges))
+    return halves[0], halves[1], vg.edge_values[colour][1]
+
+
+def split_at_best_bridge(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
+    """The rooted halves (A, a), (B, c) and Jz_b of the bridge b whose larger half has the fewest bonds."""
+    best = None
+    for k in range(vg.graph.n_edges):
+        split = _split(vg, k)
+        if split is not None:
+            size = max(split[0].graph.n_edges, split[1].graph.n_edges)
+            if best is None or size < best[0]:
+                best = (size, split)
+    if best is None:
+        raise ValueError(f"graph {vg.key} has no bridge")
+    return best[1]
+
+
+class RootedWeights:
+    """Rooted series u_1, u_3 of rooted classes and their rooted linked weights U_1, U_3 (cached in a run).
+
+    Parameters
+    ----------
+    order : int
+        The expansion order; rooted linked weights are needed up to beta^(order - 1) (a half of a graph of
+        ``order`` bonds has at most order - 1).
+    """
+
+    def __init__(self, order: int):
+        self.order = order
+        self.series: dict[str, tuple[list, list]] = {}  # rooted key -> (u1, u3), coefficients 0..order-1
+        self.linked: dict[str, tuple[list, list]] = {}
+        self.valued: dict[str, ValuedGraph] = {}
+        self.subgraph_memo: dict[str, dict[str, int]] = {}
+        self.indexed: set[str] = set()
+
+    def add(self, vg: ValuedGraph, u1, u3) -> None:
+        """Record the rooted series of every vertex of `vg` (``u1[v]``, ``u3[v]`` for vertex v of vg.graph)."""
+        if vg.key in self.indexed:
+            return
+        self.indexed.add(vg.key)
+        for v in range(vg.graph.n_vertices):
+            rvg = rooted_valued(vg, v)
+            if rvg.key not in self.series:
+                self.series[rvg.key] = (list(u1[v][: self.order]), list(u3[v][: self.order]))
+                self.valued[rvg.key] = rvg
+
+    def _rooted_subgraphs(self, rvg: ValuedGraph) -> dict[str, int]:
+        """{rooted key: count} of the connected proper subgraphs of `rvg` with >= 1 bond that contain the root."""
+        if rvg.key in self.subgraph_memo:
+            return self.subgraph_memo[rvg.key]
+        root_colour = rvg.graph.vertex_colours[_root_of(rvg)]
+        result: dict[str, int] = {}
+        for local_key, count in subgraph_counts(rvg.graph).items():
+            g = key_to_graph(local_key)
+            if root_colour not in g.vertex_colours:
+                continue
+            sub = make_valued(g.n_vertices, [rvg.vertex_values[c] for c in g.vertex_colours],
+                              [(u, v, rvg.edge_values[c]) for u, v, c in g.edges])
+            self.valued.setdefault(sub.key, sub)
+            result[sub.key] = result.get(sub.key, 0) + count
+        self.subgraph_memo[rvg.key] = result
+        return result
+
+    def _root_alone(self, rvg: ValuedGraph) -> ValuedGraph:
+        alone = make_valued(1, [rvg.vertex_values[rvg.graph.vertex_colours[_root_of(rvg)]]], [])
+        self.valued.setdefault(alone.key, alone)
+        return alone
+
+    def needed_graphs(self, rvg: ValuedGraph) -> list[ValuedGraph]:
+        """The (unrooted) valued graphs whose rooted series :meth:`top` needs for the rooted graph `rvg`."""
+        rooted = [rvg, self._root_alone(rvg)] + [self.valued[k] for k in self._rooted_subgraphs(rvg)]
+        return [unrooted(r) for r in rooted]
+
+    def linked_weight(self, key: str) -> tuple[list, list]:
+        """U_1, U_3 of the rooted class `key`, coefficients 0..order-1 (those below its bond count are 0)."""
+        if key in self.linked:
+            return self.linked[key]
+        rvg = self.valued[key]
+        try:
+            u1, u3 = self.series[key]
+        except KeyError:
+            raise KeyError(f"rooted series of {key} not known: compute the series of {unrooted(rvg).key}") from None
+        lowest = rvg.graph.n_edges
+        zero = Fraction(0)
+        w1 = [zero] * lowest + list(u1[lowest:])
+        w3 = [zero] * lowest + list(u3[lowest:])
+        if lowest:
+            parts = [(self._root_alone(rvg).key, 1)] + list(self._rooted_subgraphs(rvg).items())
+            for sub_key, count in parts:
+                s1, s3 = self.linked_weight(sub_key)
+                for n in range(lowest, self.order):
+                    w1[n] -= count * s1[n]
+                    w3[n] -= count * s3[n]
+        self.linked[key] = (w1, w3)
+        return w1, w3
+
+    def top(self, rvg: ValuedGraph) -> tuple[Fraction, Fraction]:
+        """U_1 and U_3 of the rooted graph `rvg` at beta^(its bond count), their first nonzero order."""
+        w1, w3 = self.linked_weight(rvg.key)
+        return w1[rvg.graph.n_edges], w3[rvg.graph.n_edges]
+
+
+def factorised_top_weight(vg: ValuedGraph, order: int, rooted: RootedWeights) -> dict:
+    """Linked weight {lnz, m2, m4} (coefficients of beta^0..beta^order) of a graph with `order` bonds and a bridge.
+
+    Uses the bridge whose larger half is smallest; `rooted` must hold the rooted series of the graphs that
+    :meth:`RootedWeights.needed_graphs` names for the two halves (see the module docstring for the formula).
+    """
+    if vg.graph.n_edges != order:
+        raise ValueError(f"the factorisation gives the weight of a graph with {order} bonds; {vg.key} has "
+                         f"{vg.graph.n_edges}")
+    half_a, half_b, jz = split_at_best_bridge(vg)
+    first_a, third_a = rooted.top(half_a)
+    first_b, third_b = rooted.top(half_b)
+    weight = {q: [Fraction(0)] * (order + 1) for q in QUANTITIES}
+    weight["m2"][order] = -2 * jz * first_a * first_b
+    weight["m4"][order] = -4 * jz * (first_a * third_b + third_a * first_b)
+    return weight
