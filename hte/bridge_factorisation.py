@@ -46,10 +46,14 @@ series has.
 from __future__ import annotations
 
 from fractions import Fraction
+from math import lcm
 
-from hte.canonical import key_to_graph
-from hte.clusters import subgraph_counts
+import numpy as np
+
+from hte.canonical import certificate_to_graph
+from hte.enumeration import enumerate_bond_clusters
 from hte.expansion import QUANTITIES, ValuedGraph, make_valued
+from hte.graph import ColouredGraph
 
 ROOT, OTHER = 1, 0  # third entry of a rooted vertex value (S, D, mark)
 
@@ -71,24 +75,39 @@ def _root_of(rvg: ValuedGraph) -> int:
     return next(v for v, c in enumerate(rvg.graph.vertex_colours) if rvg.vertex_values[c][2] == ROOT)
 
 
-def _split(vg: ValuedGraph, bridge: int) -> tuple[ValuedGraph, ValuedGraph, Fraction] | None:
-    """The two rooted halves (A, a) and (B, c) left by removing edge number `bridge`, and its Jz; None if the
-    edge is not a bridge."""
+def _bridge_sides(graph) -> list[tuple[int, set]]:
+    """(edge number, vertices on the side of its first end) for every bridge of `graph`."""
+    adjacency = [[] for _ in range(graph.n_vertices)]
+    for k, (u, v, _) in enumerate(graph.edges):
+        adjacency[u].append((v, k))
+        adjacency[v].append((u, k))
+    result = []
+    for k, (a, c, _) in enumerate(graph.edges):
+        side, stack = {a}, [a]
+        while stack:
+            for w, edge in adjacency[stack.pop()]:
+                if edge != k and w not in side:
+                    side.add(w)
+                    stack.append(w)
+        if c not in side:
+            result.append((k, side))
+    return result
+
+
+def split_at_best_bridge(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
+    """The rooted halves (A, a), (B, c) and Jz_b of the bridge b = (a, c) whose larger half has the fewest bonds."""
     g = vg.graph
+    sides = _bridge_sides(g)
+    if not sides:
+        raise ValueError(f"graph {vg.key} has no bridge")
+
+    def larger_half(item):
+        k, side = item
+        inside = sum(1 for u, _, _ in g.edges if u in side) - 1  # the bridge has one end inside
+        return max(inside, g.n_edges - 1 - inside)
+
+    bridge, side = min(sides, key=larger_half)
     a, c, colour = g.edges[bridge]
-    adjacency = [[] for _ in range(g.n_vertices)]
-    for k, (u, v, _) in enumerate(g.edges):
-        if k != bridge:
-            adjacency[u].append(v)
-            adjacency[v].append(u)
-    side, stack = {a}, [a]
-    while stack:
-        for w in adjacency[stack.pop()]:
-            if w not in side:
-                side.add(w)
-                stack.append(w)
-    if c in side:
-        return None
     halves = []
     for root, members in ((a, sorted(side)), (c, sorted(set(range(g.n_vertices)) - side))):
         index = {v: i for i, v in enumerate(members)}
@@ -98,18 +117,29 @@ def _split(vg: ValuedGraph, bridge: int) -> tuple[ValuedGraph, ValuedGraph, Frac
     return halves[0], halves[1], vg.edge_values[colour][1]
 
 
-def split_at_best_bridge(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
-    """The rooted halves (A, a), (B, c) and Jz_b of the bridge b whose larger half has the fewest bonds."""
-    best = None
-    for k in range(vg.graph.n_edges):
-        split = _split(vg, k)
-        if split is not None:
-            size = max(split[0].graph.n_edges, split[1].graph.n_edges)
-            if best is None or size < best[0]:
-                best = (size, split)
-    if best is None:
-        raise ValueError(f"graph {vg.key} has no bridge")
-    return best[1]
+def rooted_subgraph_certificates(graph: ColouredGraph, root: int) -> list[tuple[tuple, int]]:
+    """(canonical certificate, count) of the connected proper subgraphs of `graph` with >= 1 edge that contain
+    vertex `root`, by class (:mod:`hte.canonical` certificates; count = number of such edge subsets).
+
+    The edges at the root are numbered first, so every such subset has one of them as its smallest edge, and the
+    compiled enumeration rooted at those edges visits each subset once
+    (:func:`hte.enumeration.enumerate_bond_clusters`).
+    """
+    m = graph.n_edges
+    if m <= 1:
+        return []
+    edges = sorted(graph.edges, key=lambda e: root not in e[:2])
+    n_first = sum(1 for e in edges if root in e[:2])
+    array = np.asarray(edges, np.int64)
+    ends = np.concatenate([array[:, 0], array[:, 1]])
+    ids = np.concatenate([np.arange(m), np.arange(m)]).astype(np.int64)
+    order = np.lexsort((ids, ends))
+    pointer = np.zeros(graph.n_vertices + 1, np.int64)
+    np.add.at(pointer, ends + 1, 1)
+    certs, lengths, counts, _ = enumerate_bond_clusters(
+        m - 1, np.arange(n_first, dtype=np.int64), array[:, 0].copy(), array[:, 1].copy(), array[:, 2].copy(),
+        np.asarray(graph.vertex_colours, np.int64), np.cumsum(pointer), ids[order], graph.n_vertices)
+    return [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
 
 
 class RootedWeights:
@@ -125,16 +155,20 @@ class RootedWeights:
     def __init__(self, order: int):
         self.order = order
         self.series: dict[str, tuple[list, list]] = {}  # rooted key -> (u1, u3), coefficients 0..order-1
-        self.linked: dict[str, tuple[list, list]] = {}
+        self._denominators = None  # fixed at the first use, reset when series are added
+        self._numerators: dict[str, tuple[list, list]] = {}
         self.valued: dict[str, ValuedGraph] = {}
         self.subgraph_memo: dict[str, dict[str, int]] = {}
         self.indexed: set[str] = set()
+        self._palettes: dict[tuple, int] = {}  # (vertex values, edge values) -> a small number
+        self._valued_subgraph: dict[tuple, ValuedGraph] = {}  # (palettes number, certificate) -> valued subgraph
 
     def add(self, vg: ValuedGraph, u1, u3) -> None:
         """Record the rooted series of every vertex of `vg` (``u1[v]``, ``u3[v]`` for vertex v of vg.graph)."""
         if vg.key in self.indexed:
             return
         self.indexed.add(vg.key)
+        self._denominators, self._numerators = None, {}
         for v in range(vg.graph.n_vertices):
             rvg = rooted_valued(vg, v)
             if rvg.key not in self.series:
@@ -145,15 +179,17 @@ class RootedWeights:
         """{rooted key: count} of the connected proper subgraphs of `rvg` with >= 1 bond that contain the root."""
         if rvg.key in self.subgraph_memo:
             return self.subgraph_memo[rvg.key]
-        root_colour = rvg.graph.vertex_colours[_root_of(rvg)]
         result: dict[str, int] = {}
-        for local_key, count in subgraph_counts(rvg.graph).items():
-            g = key_to_graph(local_key)
-            if root_colour not in g.vertex_colours:
-                continue
-            sub = make_valued(g.n_vertices, [rvg.vertex_values[c] for c in g.vertex_colours],
-                              [(u, v, rvg.edge_values[c]) for u, v, c in g.edges])
-            self.valued.setdefault(sub.key, sub)
+        palettes = self._palettes.setdefault((rvg.vertex_values, rvg.edge_values), len(self._palettes))
+        for cert, count in rooted_subgraph_certificates(rvg.graph, _root_of(rvg)):
+            memo_key = (palettes, cert)
+            sub = self._valued_subgraph.get(memo_key)
+            if sub is None:
+                g = certificate_to_graph(cert)
+                sub = make_valued(g.n_vertices, [rvg.vertex_values[c] for c in g.vertex_colours],
+                                  [(u, v, rvg.edge_values[c]) for u, v, c in g.edges])
+                self._valued_subgraph[memo_key] = sub
+                self.valued.setdefault(sub.key, sub)
             result[sub.key] = result.get(sub.key, 0) + count
         self.subgraph_memo[rvg.key] = result
         return result
@@ -168,33 +204,40 @@ class RootedWeights:
         rooted = [rvg, self._root_alone(rvg)] + [self.valued[k] for k in self._rooted_subgraphs(rvg)]
         return [unrooted(r) for r in rooted]
 
-    def linked_weight(self, key: str) -> tuple[list, list]:
-        """U_1, U_3 of the rooted class `key`, coefficients 0..order-1 (those below its bond count are 0)."""
-        if key in self.linked:
-            return self.linked[key]
+    def _common_denominators(self) -> list[list[int]]:
+        """lcm of the denominators of every rooted series at beta^n, for u_1 and u_3 (n = 0..order-1)."""
+        if self._denominators is None:
+            self._denominators = [[lcm(*(s[q][n].denominator for s in self.series.values())) if self.series else 1
+                                   for n in range(self.order)] for q in (0, 1)]
+        return self._denominators
+
+    def _linked_numerators(self, key: str) -> tuple[list[int], list[int]]:
+        """U_1, U_3 of the rooted class `key` times the common denominators, coefficients 0..order-1 (zero below
+        its bond count): U(A, a) = u(A, a) - u(a alone) - sum_{A'} c(A', A) U(A', a), in integers."""
+        if key in self._numerators:
+            return self._numerators[key]
         rvg = self.valued[key]
-        try:
-            u1, u3 = self.series[key]
-        except KeyError:
-            raise KeyError(f"rooted series of {key} not known: compute the series of {unrooted(rvg).key}") from None
+        if key not in self.series:
+            raise KeyError(f"rooted series of {key} not known: compute the series of {unrooted(rvg).key}")
+        denominators = self._common_denominators()
         lowest = rvg.graph.n_edges
-        zero = Fraction(0)
-        w1 = [zero] * lowest + list(u1[lowest:])
-        w3 = [zero] * lowest + list(u3[lowest:])
+        weight = tuple([0] * lowest + [int(x * d) for x, d in zip(u[lowest:], dens[lowest:])]
+                       for u, dens in zip(self.series[key], denominators))
         if lowest:
             parts = [(self._root_alone(rvg).key, 1)] + list(self._rooted_subgraphs(rvg).items())
             for sub_key, count in parts:
-                s1, s3 = self.linked_weight(sub_key)
-                for n in range(lowest, self.order):
-                    w1[n] -= count * s1[n]
-                    w3[n] -= count * s3[n]
-        self.linked[key] = (w1, w3)
-        return w1, w3
+                for w, sub in zip(weight, self._linked_numerators(sub_key)):
+                    for n in range(lowest, self.order):
+                        w[n] -= count * sub[n]
+        self._numerators[key] = weight
+        return weight
 
     def top(self, rvg: ValuedGraph) -> tuple[Fraction, Fraction]:
         """U_1 and U_3 of the rooted graph `rvg` at beta^(its bond count), their first nonzero order."""
-        w1, w3 = self.linked_weight(rvg.key)
-        return w1[rvg.graph.n_edges], w3[rvg.graph.n_edges]
+        n = rvg.graph.n_edges
+        first, third = self._linked_numerators(rvg.key)
+        dens = self._common_denominators()
+        return Fraction(first[n], dens[0][n]), Fraction(third[n], dens[1][n])
 
 
 def factorised_top_weight(vg: ValuedGraph, order: int, rooted: RootedWeights) -> dict:
