@@ -32,6 +32,7 @@ import sys
 import time
 from dataclasses import dataclass, field
 from fractions import Fraction
+from math import lcm
 
 import sympy
 
@@ -146,6 +147,13 @@ class WeightBook:
         self.linked: dict[str, dict] = {}
         self.valued: dict[str, ValuedGraph] = {}
         self.subgraph_memo: dict[str, dict[str, int]] = {}
+        # Linked weights are subtracted in integers: self.denominators[q][n] is the lcm of the denominators of
+        # every raw beta^n coefficient of q seen so far, and W * denominator is an integer because W is an
+        # integer combination of raw series.  _numerators holds those integers.
+        self.denominators = {q: [1] * (order + 1) for q in QUANTITIES}
+        self._numerators: dict[str, dict] = {}
+        self._valued_subgraph: dict[tuple, ValuedGraph] = {}
+        self._site_key: dict[tuple, str] = {}
         self.computed = 0
         self.from_cache = 0
 
@@ -175,7 +183,7 @@ class WeightBook:
             for k in list(todo):
                 text = found.get(self._cache_key(k))
                 if text is not None:
-                    self.raw[k] = _decode(text)
+                    self._store_raw(k, _decode(text))
                     del todo[k]
                     self.from_cache += 1
         if not todo:
@@ -185,7 +193,7 @@ class WeightBook:
         pending: list[tuple[str, str]] = []
 
         def accept(key, text):
-            self.raw[key] = _decode(text)
+            self._store_raw(key, _decode(text))
             self.computed += 1
             pending.append((self._cache_key(key), text))
             bar.step()
@@ -204,33 +212,71 @@ class WeightBook:
                 self.cache.put_many(pending)
             bar.close()
 
+    def _store_raw(self, key: str, series: dict) -> None:
+        """Keep a raw series; widen the common denominators (rescaling the integer weights kept so far)."""
+        self.raw[key] = series
+        for q in QUANTITIES:
+            dens = self.denominators[q]
+            for n, x in enumerate(series[q]):
+                if dens[n] % x.denominator:
+                    wider = lcm(dens[n], x.denominator)
+                    factor = wider // dens[n]
+                    for w in self._numerators.values():
+                        w[q][n] *= factor
+                    dens[n] = wider
+
     def weight(self, key: str) -> dict:
-        """Linked weight W of the valued graph `key` (its raw series must be known)."""
-        if key in self.linked:
-            return self.linked[key]
+        """Linked weight W of the valued graph `key` as Fractions (its raw series and those of its subgraphs
+        must be known)."""
+        if key not in self.linked:
+            nums = self._linked_numerators(key)
+            self.linked[key] = {q: [Fraction(a, d) for a, d in zip(nums[q], self.denominators[q])]
+                                for q in QUANTITIES}
+        return self.linked[key]
+
+    def _linked_numerators(self, key: str) -> dict:
+        """W(key) * denominators: W = P - sum_g c(g, G) W(g) - sum_v W(v), in integers."""
+        if key in self._numerators:
+            return self._numerators[key]
         vg = self.valued[key]
         if self.negligible(vg):
-            self.linked[key] = {q: [Fraction(0)] * (self.order + 1) for q in QUANTITIES}
-            return self.linked[key]
-        w = {q: list(self.raw[key][q]) for q in QUANTITIES}
-        if vg.graph.n_edges >= 1:
-            for v in range(vg.graph.n_vertices):
-                site = site_graph(vg.vertex_values[vg.graph.vertex_colours[v]])
-                _subtract(w, self.weight(site.key), 1)
-            for sub_key, count in self._subgraphs(vg).items():
-                _subtract(w, self.weight(sub_key), count)
-        self.linked[key] = w
+            w = {q: [0] * (self.order + 1) for q in QUANTITIES}
+        else:
+            raw = self.raw[key]
+            w = {q: [x.numerator * (d // x.denominator) for x, d in zip(raw[q], self.denominators[q])]
+                 for q in QUANTITIES}
+            if vg.graph.n_edges >= 1:
+                sites: dict[int, int] = {}
+                for c in vg.graph.vertex_colours:
+                    sites[c] = sites.get(c, 0) + 1
+                for c, count in sites.items():
+                    _subtract(w, self._linked_numerators(self._site(vg.vertex_values[c])), count)
+                for sub_key, count in self._subgraphs(vg).items():
+                    _subtract(w, self._linked_numerators(sub_key), count)
+        self._numerators[key] = w
         return w
 
+    def _site(self, value) -> str:
+        if value not in self._site_key:
+            vg = site_graph(value)
+            self.valued.setdefault(vg.key, vg)
+            self._site_key[value] = vg.key
+        return self._site_key[value]
+
     def _subgraphs(self, vg: ValuedGraph) -> dict[str, int]:
+        """Connected proper subgraphs with at least one edge: valued key -> number of embeddings in `vg`."""
         if vg.key in self.subgraph_memo:
             return self.subgraph_memo[vg.key]
         result = {}
         for local_key, count in subgraph_counts(vg.graph).items():
-            g = key_to_graph(local_key)
-            sub = make_valued(g.n_vertices, [vg.vertex_values[c] for c in g.vertex_colours],
-                              [(u, v, vg.edge_values[c]) for u, v, c in g.edges])
-            self.valued.setdefault(sub.key, sub)
+            memo = (local_key, vg.vertex_values, vg.edge_values)  # local colours index vg's value palettes
+            sub = self._valued_subgraph.get(memo)
+            if sub is None:
+                g = key_to_graph(local_key)
+                sub = make_valued(g.n_vertices, [vg.vertex_values[c] for c in g.vertex_colours],
+                                  [(u, v, vg.edge_values[c]) for u, v, c in g.edges])
+                self._valued_subgraph[memo] = sub
+                self.valued.setdefault(sub.key, sub)
             result[sub.key] = result.get(sub.key, 0) + count
         self.subgraph_memo[vg.key] = result
         return result
@@ -514,9 +560,9 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
                 if sub_key not in book.raw:
                     closure[sub_key] = book.valued[sub_key]
         for v in vg.vertex_values:
-            s = site_graph(v)
-            if s.key not in book.raw:
-                closure[s.key] = s
+            site_key = book._site(v)
+            if site_key not in book.raw:
+                closure[site_key] = book.valued[site_key]
     book.ensure_raw(list(closure.values()))
     t_kernel = time.perf_counter() - t1
 
