@@ -1,4 +1,4 @@
-r"""The bridge factorisation: linked weights of T chi and M4 for top-order graphs with a bridge, without diagonalisation.
+r"""The bridge factorisation: linked T chi and M4 weights of top-order graphs with a bridge, without diagonalisation.
 
 Convention (CONVENTIONS.md): H = H0 - h M, H0 = sum_b [Jxy_b (S^x S^x + S^y S^y) + Jz_b S^z S^z] + sum_i D_i (S^z_i)^2,
 M = sum_i S^z_i, k_B = g mu_B = 1; ln Z(beta, h) = ln Z(beta, 0) + sum_k (beta h)^k / k! kappa_k with
@@ -160,6 +160,8 @@ class RootedWeights:
         self.valued: dict[str, ValuedGraph] = {}
         self.subgraph_memo: dict[str, dict[str, int]] = {}
         self.indexed: set[str] = set()
+        self._unrooted: dict[str, ValuedGraph] = {}
+        self._halves: dict[str, tuple] = {}
         self._palettes: dict[tuple, int] = {}  # (vertex values, edge values) -> a small number
         self._valued_subgraph: dict[tuple, ValuedGraph] = {}  # (palettes number, certificate) -> valued subgraph
 
@@ -199,10 +201,24 @@ class RootedWeights:
         self.valued.setdefault(alone.key, alone)
         return alone
 
+    def halves(self, vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
+        """:func:`split_at_best_bridge` of `vg`, remembered."""
+        if vg.key not in self._halves:
+            self._halves[vg.key] = split_at_best_bridge(vg)
+        return self._halves[vg.key]
+
+    def needed_for(self, vg: ValuedGraph) -> list[ValuedGraph]:
+        """The (unrooted) valued graphs whose rooted series the factorised weight of `vg` uses."""
+        half_a, half_b, _ = self.halves(vg)
+        return self.needed_graphs(half_a) + self.needed_graphs(half_b)
+
     def needed_graphs(self, rvg: ValuedGraph) -> list[ValuedGraph]:
         """The (unrooted) valued graphs whose rooted series :meth:`top` needs for the rooted graph `rvg`."""
         rooted = [rvg, self._root_alone(rvg)] + [self.valued[k] for k in self._rooted_subgraphs(rvg)]
-        return [unrooted(r) for r in rooted]
+        for r in rooted:
+            if r.key not in self._unrooted:
+                self._unrooted[r.key] = unrooted(r)
+        return [self._unrooted[r.key] for r in rooted]
 
     def _common_denominators(self) -> list[list[int]]:
         """lcm of the denominators of every rooted series at beta^n, for u_1 and u_3 (n = 0..order-1)."""
@@ -244,12 +260,12 @@ def factorised_top_weight(vg: ValuedGraph, order: int, rooted: RootedWeights) ->
     """Linked weight {lnz, m2, m4} (coefficients of beta^0..beta^order) of a graph with `order` bonds and a bridge.
 
     Uses the bridge whose larger half is smallest; `rooted` must hold the rooted series of the graphs that
-    :meth:`RootedWeights.needed_graphs` names for the two halves (see the module docstring for the formula).
+    :meth:`RootedWeights.needed_for` names (see the module docstring for the formula).
     """
     if vg.graph.n_edges != order:
         raise ValueError(f"the factorisation gives the weight of a graph with {order} bonds; {vg.key} has "
                          f"{vg.graph.n_edges}")
-    half_a, half_b, jz = split_at_best_bridge(vg)
+    half_a, half_b, jz = rooted.halves(vg)
     first_a, third_a = rooted.top(half_a)
     first_b, third_b = rooted.top(half_b)
     weight = {q: [Fraction(0)] * (order + 1) for q in QUANTITIES}

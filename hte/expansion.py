@@ -9,6 +9,9 @@ of M = sum_i S_i^z at h = 0.  The linked weight is found by subgraph subtraction
 and the lattice sum per unit cell is sum_G L(G) prod_c p_c^{n_c(G)} W(G) plus the single-site terms
 sum_c n_c p_c W(site_c), where L(G) is the number of clusters per cell of class G and p_c the occupation of
 site class c.  A graph with E bonds has W = O(beta^E), so clusters of up to `order` bonds suffice.
+A graph with E = order bonds and a bridge is not diagonalised: its weight is beta^order times a product of
+rooted weights of its two halves (:mod:`hte.bridge_factorisation`; H0 conserves M, as every model here does),
+and the smaller graphs' series come with their rooted series (:mod:`hte.rooted_series`).
 
 Numeric mode: couplings are exact rationals; bonds of zero coupling and sites of zero occupation are dropped
 before enumeration; the physical graph (vertices coloured by (S, D), edges by (Jxy, Jz) values) keys the
@@ -45,6 +48,7 @@ from hte.polynomial import add_into, interpolate, interpolation_points, lattice_
 
 QUANTITIES = ("lnz", "m2", "m4")
 CACHE_FORMAT = "raw-v1"
+ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
 
 
 # ---------------------------------------------------------------------------------------------- valued graphs
@@ -93,12 +97,19 @@ def hamiltonian_of(vg: ValuedGraph):
 
 
 def _raw_job(args):
-    """Worker: the cluster's own series as JSON text (exact fractions as strings)."""
-    key, vg, order = args
-    from hte.exact import cluster_cumulants
+    """Worker: the cluster's own series as JSON text (exact fractions as strings), and its rooted series as
+    JSON text {"u1": [[...] per site], "u3": ...} when asked for (else None)."""
+    key, vg, order, rooted = args
+    if rooted:
+        from hte.rooted_series import rooted_cluster_series
 
-    c = cluster_cumulants(hamiltonian_of(vg), order)
-    return key, json.dumps({q: [str(x) for x in getattr(c, q)] for q in QUANTITIES})
+        c, r = rooted_cluster_series(hamiltonian_of(vg), order)
+        rooted_text = json.dumps({name: [[str(x) for x in site] for site in getattr(r, name)] for name in ("u1", "u3")})
+    else:
+        from hte.exact import cluster_cumulants
+
+        c, rooted_text = cluster_cumulants(hamiltonian_of(vg), order), None
+    return key, json.dumps({q: [str(x) for x in getattr(c, q)] for q in QUANTITIES}), rooted_text
 
 
 def _decode(text: str) -> dict:
@@ -136,9 +147,14 @@ class WeightBook:
     """Raw cluster series and linked weights of valued graphs, backed by the persistent cache."""
 
     def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False, scheduler: str | None = None,
-                 lnz_only: bool = False):
+                 lnz_only: bool = False, bridge_factorisation: bool = True):
+        from hte.bridge_factorisation import RootedWeights
+
         self.order = order
         self.lnz_only = lnz_only
+        self.factorise = bridge_factorisation and not lnz_only
+        self.rooted = RootedWeights(order)
+        self.factorised_count = 0
         self.scheduler = scheduler
         self.cache = cache
         self.workers = workers
@@ -166,36 +182,52 @@ class WeightBook:
         """
         return self.lnz_only and vg.graph.n_edges + count_bridges(vg.graph) > self.order
 
-    def _cache_key(self, key: str) -> str:
-        return f"{CACHE_FORMAT}|order={self.order}|{key}"
+    def factorised(self, vg: ValuedGraph) -> bool:
+        """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge)."""
+        return self.factorise and vg.graph.n_edges == self.order and count_bridges(vg.graph) > 0
+
+    def _wants_rooted(self, vg: ValuedGraph) -> bool:
+        return self.factorise and vg.graph.n_edges < self.order
+
+    def _cache_key(self, key: str, kind: str = CACHE_FORMAT) -> str:
+        return f"{kind}|order={self.order}|{key}"
 
     def ensure_raw(self, graphs: list[ValuedGraph]) -> None:
         """Compute (or fetch from the cache) the raw series of all `graphs`; commits as results arrive."""
         todo = {}
         for vg in graphs:
             self.valued.setdefault(vg.key, vg)
-            if vg.key not in self.raw and not self.negligible(vg):
+            if self.negligible(vg) or self.factorised(vg):
+                continue
+            if vg.key not in self.raw or (self._wants_rooted(vg) and vg.key not in self.rooted.indexed):
                 todo[vg.key] = vg
         if not todo:
             return
         if self.cache is not None:
-            found = self.cache.get_many([self._cache_key(k) for k in todo])
-            for k in list(todo):
-                text = found.get(self._cache_key(k))
-                if text is not None:
+            found = self.cache.get_many([self._cache_key(k) for k in todo] + [
+                self._cache_key(k, ROOTED_CACHE_FORMAT) for k, vg in todo.items() if self._wants_rooted(vg)])
+            for k, vg in list(todo.items()):
+                text, rooted_text = found.get(self._cache_key(k)), found.get(self._cache_key(k, ROOTED_CACHE_FORMAT))
+                if text is not None and (rooted_text is not None or not self._wants_rooted(vg)):
                     self._store_raw(k, _decode(text))
+                    if self._wants_rooted(vg):
+                        self._store_rooted(k, rooted_text)
                     del todo[k]
                     self.from_cache += 1
         if not todo:
             return
-        jobs = [(k, vg, self.order) for k, vg in sorted(todo.items(), key=lambda kv: -len(kv[1].graph.edges))]
+        jobs = [(k, vg, self.order, self._wants_rooted(vg))
+                for k, vg in sorted(todo.items(), key=lambda kv: -len(kv[1].graph.edges))]
         bar = Progress(len(jobs), "cluster series", self.progress)
         pending: list[tuple[str, str]] = []
 
-        def accept(key, text):
+        def accept(key, text, rooted_text):
             self._store_raw(key, _decode(text))
             self.computed += 1
             pending.append((self._cache_key(key), text))
+            if rooted_text is not None:
+                self._store_rooted(key, rooted_text)
+                pending.append((self._cache_key(key, ROOTED_CACHE_FORMAT), rooted_text))
             bar.step()
             if self.cache is not None and len(pending) >= 64:
                 self.cache.put_many(pending)
@@ -211,6 +243,10 @@ class WeightBook:
             if self.cache is not None and pending:
                 self.cache.put_many(pending)
             bar.close()
+
+    def _store_rooted(self, key: str, text: str) -> None:
+        data = json.loads(text)
+        self.rooted.add(self.valued[key], *([[Fraction(x) for x in s] for s in data[u]] for u in ("u1", "u3")))
 
     def _store_raw(self, key: str, series: dict) -> None:
         """Keep a raw series; widen the common denominators (rescaling the integer weights kept so far)."""
@@ -228,6 +264,11 @@ class WeightBook:
     def weight(self, key: str) -> dict:
         """Linked weight W of the valued graph `key` as Fractions (its raw series and those of its subgraphs
         must be known)."""
+        if key not in self.linked and self.factorised(self.valued[key]):
+            from hte.bridge_factorisation import factorised_top_weight
+
+            self.linked[key] = factorised_top_weight(self.valued[key], self.order, self.rooted)
+            self.factorised_count += 1
         if key not in self.linked:
             nums = self._linked_numerators(key)
             self.linked[key] = {q: [Fraction(a, d) for a, d in zip(nums[q], self.denominators[q])]
@@ -488,11 +529,12 @@ def _times(poly: dict, scalar_poly: dict) -> dict:
 
 def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers: int = 1, progress: bool = False,
                    census: ClusterCensus | None = None, scheduler: str | None = None,
-                   quantities=QUANTITIES) -> LatticeSeries:
+                   quantities=QUANTITIES, bridge_factorisation: bool = True) -> LatticeSeries:
     """Exact series of ln Z, <M^2>_c and <M^4>_c per unit cell of `lattice` for `model`, to beta^order.
 
     ``quantities=("lnz",)`` asks for ln Z alone: graphs with E bonds and b bridges then start at beta^(E+b)
     (see :meth:`WeightBook.negligible`), which removes most large trees from the work.
+    ``bridge_factorisation=False`` diagonalises the graphs of E = order bonds with a bridge too (same result).
     """
     from hte.errors import ParameterError
 
@@ -526,7 +568,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     if not quantities:
         raise ParameterError(f"quantities must include some of {', '.join(QUANTITIES)}")
     book = WeightBook(order, cache=cache, workers=workers, progress=progress, scheduler=scheduler,
-                      lnz_only=quantities == ("lnz",))
+                      lnz_only=quantities == ("lnz",), bridge_factorisation=bridge_factorisation)
 
     def vertex_value(class_index):
         name = site_classes[class_index]
@@ -555,7 +597,9 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     closure = {}
     for key in list(needed):
         vg = needed[key]
-        if vg.graph.n_edges > 1 and not book.negligible(vg):
+        if book.factorised(vg):
+            closure.update((sub.key, sub) for sub in book.rooted.needed_for(vg))
+        elif vg.graph.n_edges > 1 and not book.negligible(vg):
             for sub_key in book._subgraphs(vg):
                 if sub_key not in book.raw:
                     closure[sub_key] = book.valued[sub_key]
@@ -593,7 +637,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     t_sum = time.perf_counter() - t2
     stats = {"enumeration_s": t_enum, "kernel_s": t_kernel, "assembly_s": t_sum,
              "graph_classes": len(classes), "cluster_series_computed": book.computed,
-             "cluster_series_from_cache": book.from_cache}
+             "cluster_series_from_cache": book.from_cache, "graphs_factorised": book.factorised_count}
     return LatticeSeries(variables, terms, site_counts, dict(model.occupation), order, census, stats)
 
 

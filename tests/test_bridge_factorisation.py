@@ -1,0 +1,183 @@
+"""The bridge factorisation (hte.bridge_factorisation) against brute-force linked weights.
+
+Convention: H = sum_b [Jxy (SxSx + SySy) + Jz SzSz] + sum_i D_i (S^z_i)^2 - h M, k_B = g mu_B = 1.  For every
+graph class with E = order bonds and at least one bridge, the factorised weight (no diagonalisation of the
+graph, rooted linked weights of its two halves) must equal exactly the weight found by diagonalising the graph
+and all its subgraphs and subtracting (hte.expansion.WeightBook without the factorisation): an independent
+route through the exact kernel.
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+import pytest
+
+from hte.bridge_factorisation import RootedWeights, factorised_top_weight, split_at_best_bridge
+from hte.clusters import enumerate_clusters
+from hte.expansion import QUANTITIES, WeightBook, hamiltonian_of, make_valued, site_graph
+from hte.graph import count_bridges
+from hte.lattice_file import load_lattice
+from hte.rooted_series import rooted_cluster_series
+
+HALF = Fraction(1, 2)
+
+
+def _lattice_graphs(name: str, order: int, spin, couplings: dict, anisotropy) -> list:
+    """Valued graphs of every cluster class of `name` up to `order` bonds, with the given (Jxy, Jz) per label."""
+    spec = load_lattice(name)
+    spec = spec.without_labels([label for label in spec.labels if label not in couplings])
+    census = enumerate_clusters(spec, order)
+    value = (Fraction(spin), Fraction(anisotropy))
+    return [make_valued(c.n_sites, [value] * c.n_sites,
+                        [(u, v, couplings[spec.labels[col]]) for u, v, col in c.graph.edges])
+            for c in census.classes] + [site_graph(value)]
+
+
+def _compare(name: str, order: int, spin=HALF, couplings=None, anisotropy=0) -> int:
+    """Assert factorised == brute-force weight for every top-order bridged class; return how many were checked."""
+    couplings = couplings or {"J1": (Fraction(1), Fraction(1))}
+    graphs = _lattice_graphs(name, order, spin, couplings, anisotropy)
+    brute = WeightBook(order, bridge_factorisation=False)
+    brute.ensure_raw(graphs)
+    rooted = RootedWeights(order)
+    for vg in graphs:
+        if vg.graph.n_edges < order:
+            _, series = rooted_cluster_series(hamiltonian_of(vg), order)
+            rooted.add(vg, series.u1, series.u3)
+    top = [vg for vg in graphs if vg.graph.n_edges == order and count_bridges(vg.graph)]
+    nonzero = 0
+    for vg in top:
+        factorised = factorised_top_weight(vg, order, rooted)
+        reference = brute.weight(vg.key)
+        assert {q: reference[q] for q in QUANTITIES} == factorised, vg.key
+        nonzero += factorised["m2"][order] != 0
+    assert nonzero > 0  # the comparison is not between zeros only
+    return len(top)
+
+
+@pytest.mark.parametrize("name, order", [("chain", 10), ("square", 8), ("kagome", 8), ("honeycomb", 8),
+                                         ("triangular", 7)])
+def test_heisenberg_spin_half_lattices(name, order):
+    assert _compare(name, order) >= 1
+
+
+def test_spin_one_square():
+    _compare("square", 7, spin=1)
+
+
+def test_xxz_kagome_with_ferromagnetic_ising_part():
+    _compare("kagome", 7, couplings={"J1": (Fraction(1, 2), Fraction(-3, 2))})
+
+
+def test_single_ion_anisotropy_spin_one_honeycomb():
+    # D enters the rooted series of the halves (and of a single site, whose u_1 = <(S^z)^2> is then a series)
+    _compare("honeycomb", 7, spin=1, couplings={"J1": (Fraction(1), Fraction(2, 3))}, anisotropy=Fraction(3, 4))
+
+
+def test_two_coupling_values_on_the_square_lattice():
+    # J1 and J2 bonds: the bridge may be either kind, the halves carry both
+    _compare("square", 6, couplings={"J1": (Fraction(1), Fraction(1)), "J2": (Fraction(-1, 3), Fraction(1, 2))})
+
+
+def test_chain_bond_and_path_by_hand():
+    # Spin-1/2 Heisenberg chain, worked out in the module docstring: the bond's m2 weight starts with -beta/8
+    # (-2 Jz U1(site)^2, U1(site) = S(S+1)/3 = 1/4), the 2-bond path's with +beta^2/32 = -2 (1/4)(-1/16), where
+    # -1/16 = -Tr(S^z_b S^z_c S_b.S_c)/4 is the beta term of <S^z_b S^z_c> on the bond.
+    j = (Fraction(1), Fraction(1))
+    site = site_graph((HALF, Fraction(0)))
+    bond = make_valued(2, [(HALF, Fraction(0))] * 2, [(0, 1, j)])
+    path = make_valued(3, [(HALF, Fraction(0))] * 3, [(0, 1, j), (1, 2, j)])
+    for order, pieces, graph, expected in ((1, [site], bond, [0, Fraction(-1, 8)]),
+                                           (2, [site, bond], path, [0, 0, Fraction(1, 32)])):
+        rooted = RootedWeights(order)
+        for vg in pieces:
+            _, series = rooted_cluster_series(hamiltonian_of(vg), order)
+            rooted.add(vg, series.u1, series.u3)
+        assert factorised_top_weight(graph, order, rooted)["m2"] == expected
+
+
+def test_the_most_balanced_bridge_is_chosen():
+    # A path of 5 bonds: the middle bridge leaves halves of 2 bonds each
+    j = (Fraction(1), Fraction(1))
+    path = make_valued(6, [(HALF, Fraction(0))] * 6, [(k, k + 1, j) for k in range(5)])
+    half_a, half_b, jz = split_at_best_bridge(path)
+    assert (half_a.graph.n_edges, half_b.graph.n_edges, jz) == (2, 2, 1)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name, order", [("square", 10), ("kagome", 10), ("triangular", 9), ("honeycomb", 11)])
+def test_heisenberg_spin_half_lattices_higher_orders(name, order):
+    assert _compare(name, order) >= 1
+
+
+# ------------------------------------------------------------------------------------------ integration
+def test_lattice_runs_with_and_without_the_factorisation_agree_and_the_cache_keeps_rooted_series(tmp_path):
+    from hte.cache import WeightCache
+    from hte.expansion import expand_lattice
+    from hte.models import build_model
+
+    spec = load_lattice("kagome")
+    model = build_model(spec)
+    without = expand_lattice(spec, model, 8, bridge_factorisation=False)
+    with WeightCache(tmp_path) as cache:
+        factorised = expand_lattice(spec, model, 8, cache=cache)
+        again = expand_lattice(spec, model, 8, cache=cache)
+    assert factorised.terms == without.terms == again.terms
+    assert factorised.stats["graphs_factorised"] > 0
+    assert factorised.stats["cluster_series_computed"] < without.stats["cluster_series_computed"]
+    assert again.stats["cluster_series_computed"] == 0  # raw and rooted series both came from the cache
+
+
+def test_cache_rows_without_rooted_series_are_completed(tmp_path):
+    # A cache filled by a run without the factorisation has no rooted rows: the smaller graphs are recomputed
+    # with their rooted series and the result is unchanged.
+    from hte.cache import WeightCache
+    from hte.expansion import expand_lattice
+    from hte.models import build_model
+
+    spec = load_lattice("square")
+    model = build_model(spec, spin="1")
+    with WeightCache(tmp_path) as cache:
+        without = expand_lattice(spec, model, 6, cache=cache, bridge_factorisation=False)
+        factorised = expand_lattice(spec, model, 6, cache=cache)
+    assert factorised.terms == without.terms
+    assert factorised.stats["cluster_series_computed"] > 0
+
+
+def test_symbolic_demo_lattice_agrees_with_and_without_the_factorisation():
+    # The demo's layered kagome, symbolic in J1, Jd, Jperp and the interlayer occupation: the factorised top
+    # classes are evaluated at interpolation points like any other class.
+    from hte.expansion import expand_lattice
+    from hte.models import build_model
+
+    spec = load_lattice("kagome-layered")
+    model = build_model(spec, couplings={"J2": "0"}, occupation={"interlayer": "p"}, symbolic=True)
+    factorised = expand_lattice(spec, model, 4)
+    without = expand_lattice(spec, model, 4, bridge_factorisation=False)
+    assert factorised.terms == without.terms
+    assert factorised.stats["graphs_factorised"] > 0
+
+
+def _equals_shipped_table(name: str, order: int) -> None:
+    # The shipped tables (tables/*.json) were computed before the factorisation existed, by diagonalising
+    # every graph; a cold run must reproduce them exactly.
+    from hte.series import compute_series
+
+    computed = compute_series(name, order=order, workers=2)
+    table = compute_series(name, order=order, use_tables=True)
+    assert table.provenance, "no shipped table answered the request"
+    assert computed.stats["graphs_factorised"] > 0
+    for quantity, coefficients in table.coefficients.items():
+        assert computed.coefficients[quantity] == coefficients, quantity
+
+
+@pytest.mark.parametrize("name, order", [("chain", 12), ("square", 8), ("kagome", 8)])
+def test_cold_runs_reproduce_the_shipped_tables(name, order):
+    _equals_shipped_table(name, order)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name, order", [("chain", 16), ("square", 10), ("kagome", 10)])
+def test_cold_runs_reproduce_the_shipped_tables_at_their_orders(name, order):
+    _equals_shipped_table(name, order)
