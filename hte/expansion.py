@@ -154,6 +154,7 @@ class WeightBook:
         self.lnz_only = lnz_only
         self.factorise = bridge_factorisation and not lnz_only
         self.rooted = RootedWeights(order)
+        self.rooted_wanted: set[str] = set()  # graphs whose rooted series some factorised weight uses
         self.factorised_count = 0
         self.scheduler = scheduler
         self.cache = cache
@@ -187,13 +188,17 @@ class WeightBook:
         return self.factorise and vg.graph.n_edges == self.order and count_bridges(vg.graph) > 0
 
     def _wants_rooted(self, vg: ValuedGraph) -> bool:
-        return self.factorise and vg.graph.n_edges < self.order
+        return vg.key in self.rooted_wanted
 
     def _cache_key(self, key: str, kind: str = CACHE_FORMAT) -> str:
         return f"{kind}|order={self.order}|{key}"
 
     def ensure_raw(self, graphs: list[ValuedGraph]) -> None:
-        """Compute (or fetch from the cache) the raw series of all `graphs`; commits as results arrive."""
+        """Compute (or fetch from the cache) the raw series of all `graphs`, with the rooted series of those that
+        the factorised graphs among them (or before them) use; commits as results arrive."""
+        for vg in graphs:
+            if self.factorised(vg):
+                self.rooted_wanted.update(sub.key for sub in self.rooted.needed_for(vg))
         todo = {}
         for vg in graphs:
             self.valued.setdefault(vg.key, vg)
