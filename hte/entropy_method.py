@@ -36,8 +36,7 @@ from scipy.integrate import simpson
 
 from hte.errors import ParameterError
 from hte.pade import (Band, EnsembleMember, PadeApproximant, band_from_samples, convergence_temperature,
-                      find_defects, multiply_series, near_diagonal_orders, pade_or_singular,
-                      widen_with_lower_order)
+                      find_defects, multiply_series, screened_ensemble, widen_with_lower_order)
 
 #: Smallest 1 + x = (e − e0)/(e_∞ − e0) used when solving for the energy at a temperature.
 _SMALLEST_GAP_FRACTION = 1e-300
@@ -344,19 +343,11 @@ def validated_inputs(lnZ, e0, low_t) -> tuple[EntropySeries, LowTemperatureClass
 def interpolation_ensemble(data: EntropySeries, e0: float, low_t: LowTemperatureClass, *, depth: int = 3,
                            max_offset: int = 2) -> tuple[list[EnsembleMember], list[EntropyInterpolation]]:
     """All near-diagonal Padé approximants of G, each checked with :meth:`EntropyInterpolation.defects`."""
-    g = auxiliary_series(data, e0, low_t)
-    members, accepted = [], []
-    for L, M in near_diagonal_orders(len(g) - 1, depth=depth, max_offset=max_offset):
-        approximant, singular = pade_or_singular(g, L, M)
-        if singular:
-            members.append(singular)
-            continue
+    def screen(approximant):
         interpolation = EntropyInterpolation(approximant, float(e0), data.e_inf, low_t)
-        defects = interpolation.defects()
-        members.append(EnsembleMember(L, M, approximant, defects))
-        if not defects:
-            accepted.append(interpolation)
-    return members, accepted
+        return interpolation.defects(), interpolation
+
+    return screened_ensemble(auxiliary_series(data, e0, low_t), screen, depth=depth, max_offset=max_offset)
 
 
 def _curve_samples(interpolations: list[EntropyInterpolation], temperatures) -> dict[str, list]:

@@ -46,8 +46,8 @@ from hte.entropy_method import (EntropyInterpolation, EntropySeries, LowTemperat
                                 interpolation_ensemble, power_series, validated_inputs)
 from hte.errors import ParameterError
 from hte.pade import (Band, EnsembleMember, PadeApproximant, band_from_samples, compose_series,
-                      convergence_temperature, find_defects, multiply_series, near_diagonal_orders,
-                      pade, pade_or_singular, widen_with_lower_order)
+                      convergence_temperature, find_defects, multiply_series, pade, screened_ensemble,
+                      widen_with_lower_order)
 
 #: Points of x in [−1, 0] where an approximant K must be positive (dense near both ends).
 _POSITIVITY_GRID = np.concatenate([np.logspace(-12, 0, 400) - 1.0, -np.logspace(-1, -10, 200), [0.0]])
@@ -152,17 +152,8 @@ def chi_ensemble(data: EntropySeries, chi_t: Sequence, e0: float, nu: float, *, 
         approximant = pade(k_series, degree, 0)
         defects = chi_defects(approximant)
         return [EnsembleMember(degree, 0, approximant, defects)], [] if defects else [approximant]
-    members, accepted = [], []
-    for L, M in near_diagonal_orders(len(k_series) - 1, depth=depth, max_offset=max_offset):
-        approximant, singular = pade_or_singular(k_series, L, M)
-        if singular:
-            members.append(singular)
-            continue
-        defects = chi_defects(approximant)
-        members.append(EnsembleMember(L, M, approximant, defects))
-        if not defects:
-            accepted.append(approximant)
-    return members, accepted
+    return screened_ensemble(k_series, lambda approximant: (chi_defects(approximant), approximant), depth=depth,
+                             max_offset=max_offset)
 
 
 def chi_samples(interpolations: list[EntropyInterpolation], approximants: list[PadeApproximant], nu: float,

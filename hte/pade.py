@@ -437,6 +437,26 @@ def pade_or_singular(coefficients, L: int, M: int):
         return None, EnsembleMember(L, M, None, [f"singular: {exc}"])
 
 
+def screened_ensemble(coefficients, screen, *, depth: int = 3, max_offset: int = 2) -> tuple[list[EnsembleMember], list]:
+    """Near-diagonal [L/M] of a series, each screened by the caller.
+
+    ``screen(approximant)`` returns (defects, kept): the reasons for rejection ([] to accept) and the object to
+    keep for an accepted approximant (the approximant itself or something built on it).  Returns every member
+    (singular systems included, with their reason) and the kept objects of the accepted ones, in table order.
+    """
+    members, accepted = [], []
+    for L, M in near_diagonal_orders(len(coefficients) - 1, depth=depth, max_offset=max_offset):
+        approximant, singular = pade_or_singular(coefficients, L, M)
+        if singular:
+            members.append(singular)
+            continue
+        defects, kept = screen(approximant)
+        members.append(EnsembleMember(L, M, approximant, defects))
+        if not defects:
+            accepted.append(kept)
+    return members, accepted
+
+
 def pade_ensemble(coefficients: Sequence, segment: tuple[float, float], *, depth: int = 3,
                   max_offset: int = 2, pole_margin: float = 0.02, doublet_tolerance: float = 1e-3,
                   quantity: str = "series") -> list[EnsembleMember]:
