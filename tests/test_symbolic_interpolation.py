@@ -197,3 +197,17 @@ def test_xxz_square_with_j2_equals_numeric_runs():
         numeric = compute_series("square", order=4, model="xxz", couplings={
             "J1.xy": str(values["J1_xy"]), "J1.z": str(values["J1_z"]), "J2": str(values["J2"])})
         _assert_substitution_equals_numeric(symbolic, numeric, values)
+
+
+def test_three_label_ladder_equals_numeric_runs_and_the_plain_ladder():
+    # Three symbols, no numeric energy: homogeneous weights with two free ratios (two-dimensional moved lattices).
+    symbolic = compute_series("ladder-unequal-legs", order=6, symbolic=True)
+    rng = random.Random(8)
+    for _ in range(2):
+        values = {name: _random_rational(rng) for name in ("J1", "Jleg", "Jrung")}
+        numeric = compute_series("ladder-unequal-legs", order=6, couplings={k: str(v) for k, v in values.items()})
+        _assert_substitution_equals_numeric(symbolic, numeric, values)
+    # equal legs: the ladder of lattices/ladder.toml (a separate lattice file)
+    j1, jrung = _random_rational(rng), _random_rational(rng)
+    plain = compute_series("ladder", order=6, couplings={"J1": str(j1), "Jrung": str(jrung)})
+    _assert_substitution_equals_numeric(symbolic, plain, {"J1": j1, "Jleg": j1, "Jrung": jrung})
