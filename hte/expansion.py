@@ -378,7 +378,6 @@ class ClassPlan:
         The symbol held at 1 when the weight is homogeneous in the coupling symbols (no numeric energy).
     bond_powers : tuple of (sympy.Symbol, int) or None
         (s, e_s): e_s bonds of the class carry a coupling proportional to s; None when the general scheme is used.
-    order : int
     """
 
     graph_class: GraphClass
@@ -387,7 +386,6 @@ class ClassPlan:
     free: tuple
     anchor: object
     bond_powers: tuple | None
-    order: int
 
     def weight_polynomial(self, n: int, values, variables) -> dict:
         """The beta^n coefficient of the class's linked weight over `variables` (exponent tuples -> Fraction),
@@ -488,7 +486,7 @@ def plan_class(graph_class: GraphClass, couplings, vertex_values, order: int) ->
             values[anchor] = 1
         edges = [(u, v, (_evaluate(c.xy, values), _evaluate(c.z, values))) for (u, v, _), c in zip(g.edges, couplings)]
         evaluations.append(make_valued(g.n_vertices, list(vertex_values), edges))
-    return ClassPlan(graph_class, tuple(evaluations), tuple(points), free, anchor, bond_powers, order)
+    return ClassPlan(graph_class, tuple(evaluations), tuple(points), free, anchor, bond_powers)
 
 
 # ---------------------------------------------------------------------------------------------- lattice sum
