@@ -52,8 +52,9 @@ import numpy as np
 
 from hte.canonical import certificate_to_graph
 from hte.enumeration import enumerate_bond_clusters
-from hte.expansion import QUANTITIES, ValuedGraph, make_valued
+from hte.expansion import QUANTITIES
 from hte.graph import ColouredGraph
+from hte.valued_graph import ValuedGraph, make_valued
 
 ROOT, OTHER = 1, 0  # third entry of a rooted vertex value (S, D, mark)
 

@@ -39,61 +39,17 @@ from math import lcm
 
 import sympy
 
-from hte.canonical import canonical_graph, key_to_graph
+from hte.canonical import key_to_graph
 from hte.clusters import ClusterCensus, GraphClass, enumerate_clusters, subgraph_counts
 from hte.executors import run_jobs
 from hte.graph import ColouredGraph, count_bridges
 from hte.models import SpinModel
 from hte.polynomial import add_into, interpolate, interpolation_points, lattice_size
+from hte.valued_graph import ValuedGraph, hamiltonian_of, make_valued, site_graph
 
 QUANTITIES = ("lnz", "m2", "m4")
 CACHE_FORMAT = "raw-v1"
 ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
-
-
-# ---------------------------------------------------------------------------------------------- valued graphs
-@dataclass(frozen=True)
-class ValuedGraph:
-    """A cluster with physical values: vertex values (S, D) and edge values (Jxy, Jz), canonically labelled.
-
-    ``key`` is canonical: the graph's canonical key with colours ranked by value, plus the sorted values.
-    """
-
-    key: str
-    graph: ColouredGraph  # colours index vertex_values / edge_values
-    vertex_values: tuple
-    edge_values: tuple
-
-
-def make_valued(n: int, vertex_values, edges) -> ValuedGraph:
-    """Canonical ValuedGraph from vertex values (per vertex) and edges (u, v, value)."""
-    vpal = sorted(set(vertex_values))
-    epal = sorted(set(e[2] for e in edges))
-    g = ColouredGraph(n, tuple(vpal.index(v) for v in vertex_values),
-                      tuple((min(u, v), max(u, v), epal.index(val)) for u, v, val in edges))
-    cg, _ = canonical_graph(g)
-    key = f"{cert_text(cg)}|V{_fmt(vpal)}|E{_fmt(epal)}"
-    return ValuedGraph(key, cg, tuple(vpal), tuple(epal))
-
-
-def cert_text(graph: ColouredGraph) -> str:
-    colours = ".".join(str(c) for c in graph.vertex_colours)
-    edges = ",".join(f"{u}-{v}:{c}" for u, v, c in graph.edges)
-    return f"{graph.n_vertices}|{colours}|{edges}"
-
-
-def _fmt(values) -> str:
-    return ";".join("/".join(str(x) for x in v) for v in values)
-
-
-def hamiltonian_of(vg: ValuedGraph):
-    """The kernel's ClusterHamiltonian for a valued graph."""
-    from hte.exact import ClusterHamiltonian
-
-    spins = tuple(vg.vertex_values[c][0] for c in vg.graph.vertex_colours)
-    aniso = tuple(vg.vertex_values[c][1] for c in vg.graph.vertex_colours)
-    bonds = tuple((u, v, vg.edge_values[c][0], vg.edge_values[c][1]) for u, v, c in vg.graph.edges)
-    return ClusterHamiltonian(spins=spins, bonds=bonds, anisotropy=aniso)
 
 
 def _raw_job(args):
@@ -331,10 +287,6 @@ class WeightBook:
 def _subtract(w: dict, other: dict, count: int) -> None:
     for q in QUANTITIES:
         w[q] = [a - count * b for a, b in zip(w[q], other[q])]
-
-
-def site_graph(value) -> ValuedGraph:
-    return make_valued(1, [value], [])
 
 
 # ---------------------------------------------------------------------------------------------- symbolic weights

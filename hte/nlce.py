@@ -51,9 +51,9 @@ from hte.accelerate import euler_transform, wynn_epsilon
 from hte.canonical import key_to_graph
 from hte.clusters import ClusterCensus, enumerate_clusters, subgraph_counts
 from hte.errors import ParameterError, ResourceLimitError
-from hte.expansion import ValuedGraph, hamiltonian_of, make_valued, site_graph
 from hte.pade import Band, convergence_temperature
 from hte.series import PER_CHOICES
+from hte.valued_graph import ValuedGraph, hamiltonian_of, make_valued, site_graph
 
 PROPERTIES = ("lnZ", "E", "C", "M2", "S")  # rows of a cluster's property array
 CURVES = ("chi", "C", "S", "E")

@@ -12,11 +12,11 @@ import pytest
 
 from hte.clusters import enumerate_clusters
 from hte.errors import ParameterError, ResourceLimitError
-from hte.expansion import make_valued
 from hte.lattice_file import load_lattice
 from hte.models import build_model
 from hte.nlce import LinkedWeights, PROPERTIES, nlce_curves
 from hte.series import compute_series
+from hte.valued_graph import make_valued
 
 # ------------------------------------------------------------------------------------------------ reference ED
 # Spin-1/2 Heisenberg H = sum_<ij> S_i.S_j on bit strings (bit i = spin i up), written here independently of hte:
