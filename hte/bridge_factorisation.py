@@ -52,7 +52,7 @@ import numpy as np
 
 from hte.canonical import certificate_to_graph
 from hte.enumeration import enumerate_bond_clusters
-from hte.expansion import QUANTITIES
+from hte.exact import QUANTITIES
 from hte.graph import ColouredGraph
 from hte.valued_graph import ValuedGraph, make_valued
 

@@ -157,6 +157,8 @@ class ClusterCumulants:
     m4: list
 
 
+QUANTITIES = ("lnz", "m2", "m4")  # the fields of ClusterCumulants: the additive quantities of a cluster series
+
 def _check_order(order) -> int:
     if not isinstance(order, numbers.Integral) or isinstance(order, bool) or order < 0:
         raise ParameterError(f"order = {order!r}: the series order must be an integer >= 0")

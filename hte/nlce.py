@@ -14,7 +14,7 @@ the linked weight is found by subgraph subtraction at each temperature separatel
     W(G) = P(G) - sum_{g connected, proper, >= 1 bond} c(g, G) W(g) - sum_{v in G} W(v),
 
 and the partial sum of order n (per unit cell) is the single-site terms sum_c n_c p_c W(site_c) plus
-sum_{G with <= n bonds} L(G) prod_c p_c^{n_c(G)} W(G): the same structure as :class:`hte.expansion.WeightBook`
+sum_{G with <= n bonds} L(G) prod_c p_c^{n_c(G)} W(G): the same structure as :class:`hte.weight_book.WeightBook`
 and :func:`hte.expansion.expand_lattice`, with arrays over the grid instead of series.  A cluster of n bonds
 contributes first at beta^n, so the order-n partial sum reproduces the high-temperature series through beta^n
 and in addition contains every higher term of the clusters it includes.

@@ -15,11 +15,12 @@ import pytest
 
 from hte.bridge_factorisation import RootedWeights, factorised_top_weight, split_at_best_bridge
 from hte.clusters import enumerate_clusters
-from hte.expansion import QUANTITIES, WeightBook
+from hte.exact import QUANTITIES
 from hte.graph import count_bridges
 from hte.lattice_file import load_lattice
 from hte.rooted_series import rooted_cluster_series
 from hte.valued_graph import hamiltonian_of, make_valued, site_graph
+from hte.weight_book import WeightBook
 
 HALF = Fraction(1, 2)
 

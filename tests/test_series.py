@@ -254,9 +254,9 @@ def test_per_magnetic_site_divides_by_occupied_sites():
 
 def test_rational_coefficients_agree_with_float_route_to_1e12():
     # The exact kernel and the plain dense float diagonalisation of each cluster, through the same assembly.
-    from hte.exact import dense_cumulants_float
-    from hte.expansion import QUANTITIES, WeightBook
+    from hte.exact import QUANTITIES, dense_cumulants_float
     from hte.valued_graph import hamiltonian_of, make_valued
+    from hte.weight_book import WeightBook
 
     book = WeightBook(order=7)
     half, one = (Fraction(1, 2), Fraction(0)), (Fraction(1), Fraction(1, 3))
@@ -274,8 +274,8 @@ def test_linked_weights_vanish_below_their_bond_count():
     # appear); for ln Z at h = 0 each bridge must appear twice, so it starts at beta^(E + bridges).
     import networkx as nx
 
-    from hte.expansion import WeightBook
     from hte.valued_graph import make_valued
+    from hte.weight_book import WeightBook
 
     rng = np.random.default_rng(7)
     book = WeightBook(order=7)

@@ -1,0 +1,286 @@
+r"""Raw cluster series and linked weights of valued graphs, computed by the kernel or read from the weight cache.
+
+For every valued graph G (:mod:`hte.valued_graph`) the kernel gives the cluster's own series P(G) of the three
+additive quantities of :data:`hte.exact.QUANTITIES` (coefficients of beta^n, n = 0..order, exact Fractions):
+ln Z(beta, 0) - sum_i ln(2 S_i + 1), the second and the fourth cumulant of M = sum_i S_i^z at h = 0.  The
+linked weight is found by subgraph subtraction,
+
+    W(G) = P(G) - sum_{g connected, proper} c(g, G) W(g) - sum_{v in G} W(v),
+
+done in integers over common denominators.  A graph with E = order bonds and a bridge is not diagonalised: its
+weight is beta^order times a product of rooted weights of its two halves (:mod:`hte.bridge_factorisation`), and
+the smaller graphs' series come with their rooted series (:mod:`hte.rooted_series`).
+
+Cache rows (:mod:`hte.cache`): key "raw-v1|order=N|<valued key>" holds the JSON {"lnz": [...], "m2": [...],
+"m4": [...]} of P(G) with Fractions as strings; "rooted-v1|order=N|<valued key>" holds {"u1": [[...] per site],
+"u3": ...}.  These formats are shared with existing caches and must not change.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+import time
+from fractions import Fraction
+from math import lcm
+
+from hte.bridge_factorisation import RootedWeights, factorised_top_weight
+from hte.canonical import key_to_graph
+from hte.clusters import subgraph_counts
+from hte.exact import QUANTITIES, cluster_cumulants
+from hte.executors import run_jobs
+from hte.graph import count_bridges
+from hte.rooted_series import rooted_cluster_series
+from hte.valued_graph import ValuedGraph, hamiltonian_of, make_valued, site_graph
+
+CACHE_FORMAT = "raw-v1"
+ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
+
+
+def _raw_job(args):
+    """Worker: the cluster's own series as JSON text (exact fractions as strings), and its rooted series as
+    JSON text {"u1": [[...] per site], "u3": ...} when asked for (else None)."""
+    key, vg, order, rooted = args
+    if rooted:
+        c, r = rooted_cluster_series(hamiltonian_of(vg), order)
+        rooted_text = json.dumps({name: [[str(x) for x in site] for site in getattr(r, name)] for name in ("u1", "u3")})
+    else:
+        c, rooted_text = cluster_cumulants(hamiltonian_of(vg), order), None
+    return key, json.dumps({q: [str(x) for x in getattr(c, q)] for q in QUANTITIES}), rooted_text
+
+
+def _decode(text: str) -> dict:
+    data = json.loads(text)
+    return {q: [Fraction(x) for x in data[q]] for q in QUANTITIES}
+
+
+# ---------------------------------------------------------------------------------------------- progress
+class Progress:
+    """A one-line progress display on stderr (graphs done, rate, estimated time left)."""
+
+    def __init__(self, total: int, what: str, enabled: bool):
+        self.total, self.what, self.enabled = total, what, enabled
+        self.start = time.perf_counter()
+        self.last = 0.0
+        self.done = 0
+
+    def step(self, k: int = 1) -> None:
+        self.done += k
+        now = time.perf_counter()
+        if self.enabled and (now - self.last > 0.5 or self.done == self.total):
+            self.last = now
+            elapsed = now - self.start
+            left = elapsed / self.done * (self.total - self.done) if self.done else float("nan")
+            print(f"\r  {self.what}: {self.done}/{self.total} done, {elapsed:.0f} s elapsed, about {left:.0f} s left ",
+                  end="", file=sys.stderr, flush=True)
+
+    def close(self) -> None:
+        if self.enabled and self.total:
+            print(file=sys.stderr, flush=True)
+
+
+# ---------------------------------------------------------------------------------------------- weights
+class WeightBook:
+    """Raw cluster series and linked weights of valued graphs, backed by the persistent cache."""
+
+    def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False, scheduler: str | None = None,
+                 lnz_only: bool = False, bridge_factorisation: bool = True):
+        self.order = order
+        self.lnz_only = lnz_only
+        self.factorise = bridge_factorisation and not lnz_only
+        self.rooted = RootedWeights(order)
+        self.rooted_wanted: set[str] = set()  # graphs whose rooted series some factorised weight uses
+        self.factorised_count = 0
+        self.scheduler = scheduler
+        self.cache = cache
+        self.workers = workers
+        self.progress = progress
+        self.raw: dict[str, dict] = {}
+        self.linked: dict[str, dict] = {}
+        self.valued: dict[str, ValuedGraph] = {}
+        self.subgraph_memo: dict[str, dict[str, int]] = {}
+        # Linked weights are subtracted in integers: self.denominators[q][n] is the lcm of the denominators of
+        # every raw beta^n coefficient of q seen so far, and W * denominator is an integer because W is an
+        # integer combination of raw series.  _numerators holds those integers.
+        self.denominators = {q: [1] * (order + 1) for q in QUANTITIES}
+        self._numerators: dict[str, dict] = {}
+        self._valued_subgraph: dict[tuple, ValuedGraph] = {}
+        self._site_key: dict[tuple, str] = {}
+        self.computed = 0
+        self.from_cache = 0
+
+    def negligible(self, vg: ValuedGraph) -> bool:
+        """True when only ln Z is wanted and the graph's weight vanishes to this order.
+
+        At h = 0 a term of ln Z that uses a bridge once is a product of one-point functions <S_a> of the two
+        halves, which vanish by the global spin flip (S^z) and the U(1) symmetry (S^x, S^y) of H0; so every
+        bridge appears at least twice and a graph with E bonds and b bridges starts at beta^(E + b).
+        """
+        return self.lnz_only and vg.graph.n_edges + count_bridges(vg.graph) > self.order
+
+    def factorised(self, vg: ValuedGraph) -> bool:
+        """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge)."""
+        return self.factorise and vg.graph.n_edges == self.order and count_bridges(vg.graph) > 0
+
+    def _wants_rooted(self, vg: ValuedGraph) -> bool:
+        return vg.key in self.rooted_wanted
+
+    def _cache_key(self, key: str, kind: str = CACHE_FORMAT) -> str:
+        return f"{kind}|order={self.order}|{key}"
+
+    def ensure_raw(self, graphs: list[ValuedGraph]) -> None:
+        """Compute (or fetch from the cache) the raw series of all `graphs`, with the rooted series of those that
+        the factorised graphs among them (or before them) use; commits as results arrive."""
+        for vg in graphs:
+            if self.factorised(vg):
+                self.rooted_wanted.update(sub.key for sub in self.rooted.needed_for(vg))
+        todo = {}
+        for vg in graphs:
+            self.valued.setdefault(vg.key, vg)
+            if self.negligible(vg) or self.factorised(vg):
+                continue
+            if vg.key not in self.raw or (self._wants_rooted(vg) and vg.key not in self.rooted.indexed):
+                todo[vg.key] = vg
+        if not todo:
+            return
+        if self.cache is not None:
+            found = self.cache.get_many([self._cache_key(k) for k in todo] + [
+                self._cache_key(k, ROOTED_CACHE_FORMAT) for k, vg in todo.items() if self._wants_rooted(vg)])
+            for k, vg in list(todo.items()):
+                text, rooted_text = found.get(self._cache_key(k)), found.get(self._cache_key(k, ROOTED_CACHE_FORMAT))
+                if text is not None and (rooted_text is not None or not self._wants_rooted(vg)):
+                    self._store_raw(k, _decode(text))
+                    if self._wants_rooted(vg):
+                        self._store_rooted(k, rooted_text)
+                    del todo[k]
+                    self.from_cache += 1
+        if not todo:
+            return
+        jobs = [(k, vg, self.order, self._wants_rooted(vg))
+                for k, vg in sorted(todo.items(), key=lambda kv: -len(kv[1].graph.edges))]
+        bar = Progress(len(jobs), "cluster series", self.progress)
+        pending: list[tuple[str, str]] = []
+
+        def accept(key, text, rooted_text):
+            self._store_raw(key, _decode(text))
+            self.computed += 1
+            pending.append((self._cache_key(key), text))
+            if rooted_text is not None:
+                self._store_rooted(key, rooted_text)
+                pending.append((self._cache_key(key, ROOTED_CACHE_FORMAT), rooted_text))
+            bar.step()
+            if self.cache is not None and len(pending) >= 64:
+                self.cache.put_many(pending)
+                pending.clear()
+
+        try:
+            run_jobs(_raw_job, jobs, lambda result: accept(*result), workers=self.workers,
+                     scheduler=self.scheduler)
+        except KeyboardInterrupt:
+            raise KeyboardInterrupt(f"{self.computed} of {len(jobs)} cluster series were finished and kept in the "
+                                    "weight cache; rerun the same command to resume") from None
+        finally:
+            if self.cache is not None and pending:
+                self.cache.put_many(pending)
+            bar.close()
+
+    def ensure_weights(self, graphs: list[ValuedGraph]) -> None:
+        """Compute (or fetch) every raw series that the linked weights of `graphs` need: those of the graphs, then
+        those of their subgraphs and single sites and the rooted series of the factorised graphs (subgraphs of
+        lattice clusters are lattice clusters, but in symbolic mode a subgraph can meet an evaluation point that
+        no graph class asked for)."""
+        self.ensure_raw(graphs)
+        closure = {}
+        for vg in graphs:
+            if self.factorised(vg):
+                closure.update((sub.key, sub) for sub in self.rooted.needed_for(vg))
+            elif vg.graph.n_edges > 1 and not self.negligible(vg):
+                for sub_key in self._subgraphs(vg):
+                    if sub_key not in self.raw:
+                        closure[sub_key] = self.valued[sub_key]
+            for v in vg.vertex_values:
+                site_key = self._site(v)
+                if site_key not in self.raw:
+                    closure[site_key] = self.valued[site_key]
+        self.ensure_raw(list(closure.values()))
+
+    def _store_rooted(self, key: str, text: str) -> None:
+        data = json.loads(text)
+        self.rooted.add(self.valued[key], *([[Fraction(x) for x in s] for s in data[u]] for u in ("u1", "u3")))
+
+    def _store_raw(self, key: str, series: dict) -> None:
+        """Keep a raw series; widen the common denominators (rescaling the integer weights kept so far)."""
+        self.raw[key] = series
+        for q in QUANTITIES:
+            dens = self.denominators[q]
+            for n, x in enumerate(series[q]):
+                if dens[n] % x.denominator:
+                    wider = lcm(dens[n], x.denominator)
+                    factor = wider // dens[n]
+                    for w in self._numerators.values():
+                        w[q][n] *= factor
+                    dens[n] = wider
+
+    def weight(self, key: str) -> dict:
+        """Linked weight W of the valued graph `key` as Fractions (its raw series and those of its subgraphs
+        must be known)."""
+        if key not in self.linked and self.factorised(self.valued[key]):
+            self.linked[key] = factorised_top_weight(self.valued[key], self.order, self.rooted)
+            self.factorised_count += 1
+        if key not in self.linked:
+            nums = self._linked_numerators(key)
+            self.linked[key] = {q: [Fraction(a, d) for a, d in zip(nums[q], self.denominators[q])]
+                                for q in QUANTITIES}
+        return self.linked[key]
+
+    def _linked_numerators(self, key: str) -> dict:
+        """W(key) * denominators: W = P - sum_g c(g, G) W(g) - sum_v W(v), in integers."""
+        if key in self._numerators:
+            return self._numerators[key]
+        vg = self.valued[key]
+        if self.negligible(vg):
+            w = {q: [0] * (self.order + 1) for q in QUANTITIES}
+        else:
+            raw = self.raw[key]
+            w = {q: [x.numerator * (d // x.denominator) for x, d in zip(raw[q], self.denominators[q])]
+                 for q in QUANTITIES}
+            if vg.graph.n_edges >= 1:
+                sites: dict[int, int] = {}
+                for c in vg.graph.vertex_colours:
+                    sites[c] = sites.get(c, 0) + 1
+                for c, count in sites.items():
+                    _subtract(w, self._linked_numerators(self._site(vg.vertex_values[c])), count)
+                for sub_key, count in self._subgraphs(vg).items():
+                    _subtract(w, self._linked_numerators(sub_key), count)
+        self._numerators[key] = w
+        return w
+
+    def _site(self, value) -> str:
+        if value not in self._site_key:
+            vg = site_graph(value)
+            self.valued.setdefault(vg.key, vg)
+            self._site_key[value] = vg.key
+        return self._site_key[value]
+
+    def _subgraphs(self, vg: ValuedGraph) -> dict[str, int]:
+        """Connected proper subgraphs with at least one edge: valued key -> number of embeddings in `vg`."""
+        if vg.key in self.subgraph_memo:
+            return self.subgraph_memo[vg.key]
+        result = {}
+        for local_key, count in subgraph_counts(vg.graph).items():
+            memo = (local_key, vg.vertex_values, vg.edge_values)  # local colours index vg's value palettes
+            sub = self._valued_subgraph.get(memo)
+            if sub is None:
+                g = key_to_graph(local_key)
+                sub = make_valued(g.n_vertices, [vg.vertex_values[c] for c in g.vertex_colours],
+                                  [(u, v, vg.edge_values[c]) for u, v, c in g.edges])
+                self._valued_subgraph[memo] = sub
+                self.valued.setdefault(sub.key, sub)
+            result[sub.key] = result.get(sub.key, 0) + count
+        self.subgraph_memo[vg.key] = result
+        return result
+
+
+def _subtract(w: dict, other: dict, count: int) -> None:
+    for q in QUANTITIES:
+        w[q] = [a - count * b for a, b in zip(w[q], other[q])]
