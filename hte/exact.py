@@ -48,7 +48,7 @@ from hte.spin_matrices import (
 
 _BLOCK_ENTRIES = 2**20  # unit vectors propagated together: dim * block <= this (3 float64 buffers, 24 MiB)
 _BLOCK_MAX = 64
-_SYMMETRY_MIN_DIM = 64  # below this sector size the symmetry search costs more than it saves
+SYMMETRY_MIN_DIM = 64  # sectors this large use the cluster's symmetries; below, the search costs more than it saves
 _DENSE_MAX_STATES = 2**13  # the dense reference refuses larger clusters (a 2**13 matrix takes 512 MiB)
 
 
@@ -159,7 +159,15 @@ class ClusterCumulants:
 
 QUANTITIES = ("lnz", "m2", "m4")  # the fields of ClusterCumulants: the additive quantities of a cluster series
 
-def _check_order(order) -> int:
+
+def propagation_block(dimension: int) -> int:
+    """How many unit vectors the kernels propagate together in a sector of `dimension` states: at most
+    _BLOCK_MAX, at least 1, and dimension * block <= _BLOCK_ENTRIES (3 float64 buffers of at most 24 MiB)."""
+    return max(1, min(_BLOCK_MAX, _BLOCK_ENTRIES // dimension))
+
+
+def check_order(order) -> int:
+    """The series order as an int; ParameterError unless it is an integer >= 0 (bool is refused)."""
     if not isinstance(order, numbers.Integral) or isinstance(order, bool) or order < 0:
         raise ParameterError(f"order = {order!r}: the series order must be an integer >= 0")
     return int(order)
@@ -185,14 +193,14 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     Exact for every spin and rational couplings.  Cost: for each sector m >= 0 of dimension d and each prime,
     about (order/2) * nnz * d multiply-adds, nnz the number of nonzeros of H0 in the sector.
     """
-    order = _check_order(order)
+    order = check_order(order)
     scale, traces = _integer_power_traces(ham, order)
     multiplicity = {twice_m: 1 if twice_m == 0 else 2 for twice_m in traces}  # sectors m and -m
     sums = {
         q: [sum(multiplicity[tm] * tm**q * t[k] for tm, t in traces.items()) for k in range(order + 1)]
         for q in (0, 2, 4)
     }
-    return _cumulants_from_integer_moments(sums, scale, order)
+    return cumulants_from_integer_moments(sums, scale, order)
 
 
 def _integer_power_traces(
@@ -202,7 +210,7 @@ def _integer_power_traces(
 
     The primes' product exceeds 2 d R^order >= 2 |Tr_m A^k| (A is similar to a real symmetric matrix with
     spectral radius <= R, :attr:`hte.spin_matrices.IntegerCouplings.spectral_bound`), so Chinese remaindering
-    is exact.  With ``use_symmetry`` (default: when some sector has at least _SYMMETRY_MIN_DIM states) only
+    is exact.  With ``use_symmetry`` (default: when some sector has at least SYMMETRY_MIN_DIM states) only
     one unit vector per orbit of the cluster's symmetries is propagated (:mod:`hte.cluster_symmetry`); the
     result is identical.
     """
@@ -210,7 +218,7 @@ def _integer_power_traces(
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
     largest = max(sector.dim for sector in sectors)
     if use_symmetry is None:
-        use_symmetry = largest >= _SYMMETRY_MIN_DIM
+        use_symmetry = largest >= SYMMETRY_MIN_DIM
     automorphisms = site_automorphisms(ham) if use_symmetry else []
     matrices = [integer_sector_matrix(sector, couplings) for sector in sectors]
     bits = prime_bits_for(
@@ -223,7 +231,7 @@ def _integer_power_traces(
             columns, orbit_sizes = state_orbits(sector, ham.twice_spins, automorphisms)
         else:
             columns, orbit_sizes = np.arange(sector.dim), np.ones(sector.dim, dtype=np.int64)
-        block = max(1, min(_BLOCK_MAX, _BLOCK_ENTRIES // sector.dim))
+        block = propagation_block(sector.dim)
         residues = []
         for prime in primes:
             row_weight, column_weight = gauge_weights_mod(sector, ham.twice_spins, prime)
@@ -247,7 +255,7 @@ def _integer_power_traces(
     return couplings.scale, traces
 
 
-def _cumulants_from_integer_moments(sums: dict[int, list[int]], scale: int, order: int) -> ClusterCumulants:
+def cumulants_from_integer_moments(sums: dict[int, list[int]], scale: int, order: int) -> ClusterCumulants:
     r"""Exact lnz, kappa_2, kappa_4 from the integers s_q[k] = sum_m (2m)^q Tr_m(A^k), A = scale * H0.
 
     With x = -beta/scale, Z_q(beta) = Tr(M^q e^{-beta H0}) = 2^{-q} sum_k s_q[k] x^k / k!, an exponential
@@ -291,7 +299,7 @@ def _cumulants_from_integer_moments(sums: dict[int, list[int]], scale: int, orde
 def _cumulants_from_moments(moments: dict[int, list], order: int) -> ClusterCumulants:
     """lnz, kappa_2, kappa_4 series from mu_q[k] = sum_m m^q Tr_m(H0^k), q = 0, 2, 4, by ordinary power series.
 
-    Used by the float reference (the exact kernel uses :func:`_cumulants_from_integer_moments`).
+    Used by the float reference (the exact kernel uses :func:`cumulants_from_integer_moments`).
 
     Z_q(beta) = sum_k (-beta)^k mu_q[k] / k! = Tr(M^q e^{-beta H0}); ln(Z_0 / Z_0(0)), <M^2> = Z_2 / Z_0 and
     <M^4> - 3 <M^2>^2 = Z_4 / Z_0 - 3 (Z_2 / Z_0)^2, truncated at beta^order.
@@ -353,7 +361,7 @@ def dense_cumulants_float(ham: ClusterHamiltonian, order: int) -> ClusterCumulan
     ResourceLimitError
         If the cluster has more than 2**13 states.
     """
-    order = _check_order(order)
+    order = check_order(order)
     n_states = prod(t + 1 for t in ham.twice_spins)
     if n_states > _DENSE_MAX_STATES:
         raise ResourceLimitError(

@@ -33,13 +33,12 @@ import numpy as np
 
 from hte.cluster_symmetry import site_automorphisms, state_orbit_labels
 from hte.exact import (
-    _BLOCK_ENTRIES,
-    _BLOCK_MAX,
-    _SYMMETRY_MIN_DIM,
+    SYMMETRY_MIN_DIM,
     ClusterCumulants,
     ClusterHamiltonian,
-    _check_order,
-    _cumulants_from_integer_moments,
+    check_order,
+    cumulants_from_integer_moments,
+    propagation_block,
 )
 from hte.modular import (
     crt_signed,
@@ -75,7 +74,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterC
     Costs about what :func:`hte.exact.cluster_cumulants` costs (the same propagation, one unit vector per
     orbit of the cluster's symmetries); the diagonals kept take (orbits) * (order + 1) int64 per sector and prime.
     """
-    order = _check_order(order)
+    order = check_order(order)
     couplings = integer_couplings(ham)
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
     matrices = [integer_sector_matrix(sector, couplings) for sector in sectors]
@@ -83,7 +82,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterC
     bits = prime_bits_for(max(m.max_row_length for m in matrices), max(m.max_abs_entry for m in matrices), largest)
     # |Tr_m(2 S^z_a A^k)| <= 2 S_a * dim * R^k, R >= scale * ||H0|| (see hte.exact._integer_power_traces)
     primes = primes_exceeding(bits, max(ham.twice_spins) * largest * max(couplings.spectral_bound, 1) ** order)
-    use_symmetry = largest >= _SYMMETRY_MIN_DIM
+    use_symmetry = largest >= SYMMETRY_MIN_DIM
     automorphisms = site_automorphisms(ham) if use_symmetry else []
     traces, rooted = {}, {}
     for sector, matrix in zip(sectors, matrices):
@@ -95,7 +94,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterC
         twice_m = 2 * sector.local_states - np.array(ham.twice_spins, dtype=np.int64)
         orbit_weights = np.zeros((ham.n_sites, columns.size), dtype=np.int64)
         np.add.at(orbit_weights.T, orbit, twice_m)
-        block = max(1, min(_BLOCK_MAX, _BLOCK_ENTRIES // sector.dim))
+        block = propagation_block(sector.dim)
         total_residues, site_residues = [], []
         for prime in primes:
             row_weight, column_weight = gauge_weights_mod(sector, ham.twice_spins, prime)
@@ -116,7 +115,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterC
     multiplicity = {twice_m: 1 if twice_m == 0 else 2 for twice_m in traces}  # sectors m and -m
     sums = {q: [sum(multiplicity[tm] * tm**q * t[k] for tm, t in traces.items()) for k in range(order + 1)]
             for q in (0, 2, 4)}
-    cumulants = _cumulants_from_integer_moments(sums, couplings.scale, order)
+    cumulants = cumulants_from_integer_moments(sums, couplings.scale, order)
     # r_q[a][k] = sum_m (2m)^q Tr_m(2 S^z_a A^k) over all m: sectors m and -m give equal terms for odd q
     site_sums = {q: [[2 * sum(tm**q * t[a][k] for tm, t in rooted.items()) for k in range(order + 1)]
                      for a in range(ham.n_sites)] for q in (1, 3)}
@@ -127,7 +126,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterC
 def _joint_cumulants(s0, s2, r1, r3, scale: int, order: int) -> tuple[list, list]:
     r"""u_1(a), u_3(a) series from the integers s_q[k] = sum_m (2m)^q Tr_m A^k and r_q[a][k] (see above).
 
-    As in :func:`hte.exact._cumulants_from_integer_moments`, with x = -beta/scale every ratio
+    As in :func:`hte.exact.cumulants_from_integer_moments`, with x = -beta/scale every ratio
     Tr(X e^{-beta H0}) / Tr(e^{-beta H0}) is an exponential generating function whose coefficient of x^n/n! is
     P_X[n] / d^(n+1) with integer P_X[n] = sum_k C(n,k) s_X[k] R_(n-k) d^k (d = s_0[0], R the integers of 1/Z).
     Then u_1 = P_r1 / (4 d^(n+1)) and u_3 = (d P_r3[n] - 3 sum_k C(n,k) P_s2[k] P_r1[n-k]) / (16 d^(n+2)),
