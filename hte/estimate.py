@@ -3,9 +3,12 @@
 The estimate is deliberately simple and says so: the cluster and graph-class counts are enumerated exactly
 up to the size where that takes about a second, then extrapolated with the last measured growth factors;
 the enumeration time uses the measured time per cluster; the kernel time scales a measured kernel call on a
-path cluster by the growth of the largest S^z sector (the kernel's cost grows like its square); the memory is
-the kernel's working set for the largest cluster (sparse integer sector matrix and propagation blocks) per
-worker.  Expect the time to be right within a factor of a few; the memory bound is the one that matters for
+sample cluster by the growth of the largest S^z sector (the kernel's cost grows like its square); the memory is
+the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
+blocks) per worker.  Clusters that the run never diagonalises are left out of both: at the top order, trees
+(every bond a bridge) get their T chi and M4 weights from the bridge factorisation (hte.bridge_factorisation),
+and with ln Z only a tree of E bonds first contributes at beta^(2E) (every bridge appears twice), so the
+largest diagonalised cluster has `order` sites rather than order + 1.  Expect the time to be right within a factor of a few; the memory bound is the one that matters for
 refusing a run.
 """
 
@@ -53,7 +56,9 @@ def _duration(seconds: float) -> str:
         return f"{seconds:.0f} s"
     if seconds < 7200:
         return f"{seconds / 60:.0f} min"
-    return f"{seconds / 3600:.1f} h"
+    if seconds < 2 * 86400:
+        return f"{seconds / 3600:.1f} h"
+    return f"{seconds / 86400:.3g} days"
 
 
 def largest_sector(n_sites: int, twice_spin: int) -> int:
@@ -76,8 +81,21 @@ def available_memory() -> int:
         return 8 * 2**30
 
 
-def estimate_run(spec, model, order: int, workers: int = 1) -> RunEstimate:
-    """Estimate time and memory of the series run of `model` on `spec` to `order` (see module docstring)."""
+def diagonalised(n_bonds: int, n_sites: int, order: int, lnz_only: bool) -> bool:
+    """Whether a run to `order` diagonalises a graph class of n_bonds bonds on n_sites sites.
+
+    Trees (n_sites = n_bonds + 1) are skipped at the top order (bridge factorisation) and, for ln Z alone,
+    whenever 2 n_bonds > order.  Other graphs with bridges are skipped too by the run but counted here, so the
+    estimate errs on the expensive side.
+    """
+    if n_sites != n_bonds + 1:
+        return True
+    return 2 * n_bonds <= order if lnz_only else n_bonds < order
+
+
+def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = False) -> RunEstimate:
+    """Estimate time and memory of the series run of `model` on `spec` to `order` (see module docstring);
+    `lnz_only` for runs of ln Z alone."""
     twice_spin = max(int(2 * s) for s in model.spin.values())
     counts, classes, seconds = [], [], []
     n = 0
@@ -102,14 +120,14 @@ def estimate_run(spec, model, order: int, workers: int = 1) -> RunEstimate:
         n_classes += last_classes
         enum_s += last_count * per_cluster
     # kernel: time real classes of the largest affordable size, scale by the square of the largest sector
-    kernel_s = _kernel_seconds(census, order, twice_spin, class_growth, model)
-    top = largest_sector(order + 1, twice_spin)
+    kernel_s = _kernel_seconds(census, order, twice_spin, class_growth, lnz_only)
+    top = largest_sector(order, twice_spin)
     memory = top * (order + 2) * 16 + _BLOCK_BYTES + top * 64
     return RunEstimate(order, int(total), int(n_classes), enum_s / max(workers, 1), kernel_s / max(workers, 1),
                        top, int(memory), n)
 
 
-def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, model) -> float:
+def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, lnz_only: bool) -> float:
     """Projected kernel time: measured on sample classes, scaled by (largest sector)^2 to larger clusters."""
     from hte.exact import ClusterHamiltonian, cluster_cumulants
 
@@ -128,7 +146,7 @@ def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, mo
     probe_s = (time.perf_counter() - start) / len(sample)
     probe_dim = largest_sector(probe_sites, twice_spin)
     # sites of the classes per size; beyond the census, each extra bond adds at most one site
-    sizes = {}
+    sizes: dict[int, list[int]] = {}
     for c in census.classes:
         sizes.setdefault(c.n_bonds, []).append(c.n_sites)
     top = max(sizes)
@@ -138,7 +156,8 @@ def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, mo
             sites, factor = sizes[n], 1.0
         else:
             sites, factor = [k + (n - top) for k in sizes[top]], class_growth ** (n - top)
-        total += factor * sum(probe_s * (largest_sector(k, twice_spin) / probe_dim) ** 2 for k in sites)
+        total += factor * sum(probe_s * (largest_sector(k, twice_spin) / probe_dim) ** 2
+                              for k in sites if diagonalised(n, k, order, lnz_only))
     return total
 
 

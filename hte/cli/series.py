@@ -92,7 +92,7 @@ def series_from_args(args, *, default_order: int | None = None):
         from hte.estimate import check_memory, estimate_run
 
         estimate = estimate_run(spec.without_labels([l for l, c in model.couplings.items() if c.is_zero]), model,
-                                order, workers)
+                                order, workers, lnz_only=args.lnz_only)
         print(f"# {estimate.describe()}", file=sys.stderr)
         if not args.force:
             check_memory(estimate, workers)
