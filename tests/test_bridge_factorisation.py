@@ -3,7 +3,7 @@
 Convention: H = sum_b [Jxy (SxSx + SySy) + Jz SzSz] + sum_i D_i (S^z_i)^2 - h M, k_B = g mu_B = 1.  For every
 graph class with E = order bonds and at least one bridge, the factorised weight (no diagonalisation of the
 graph, rooted linked weights of its two halves) must equal exactly the weight found by diagonalising the graph
-and all its subgraphs and subtracting (hte.expansion.WeightBook without the factorisation): an independent
+and all its subgraphs and subtracting (hte.weight_book.WeightBook without the factorisation): an independent
 route through the exact kernel.
 """
 

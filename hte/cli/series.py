@@ -101,7 +101,8 @@ def series_from_args(args, *, default_order: int | None = None):
         from hte.cache import WeightCache
 
         cache = WeightCache()
-    from hte.expansion import QUANTITIES, expand_lattice
+    from hte.exact import QUANTITIES
+    from hte.expansion import expand_lattice
 
     try:
         ls = expand_lattice(spec, model, order, cache=cache, workers=workers, progress=sys.stderr.isatty(),
