@@ -5,6 +5,7 @@ LATTICE may carry coupling values after a colon, e.g. `cubic:J1=-1` (the ferroma
 
 from __future__ import annotations
 
+import json
 import os
 import platform
 import resource
@@ -22,9 +23,15 @@ from hte.series import normalise, write_json_atomic
 from hte.tables import TABLE_FORMAT, TABLES_DIR
 
 
-def make_table(request: str, order: int) -> None:
+def make_table(request: str, order: int) -> dict:
+    """Compute the table of `request` to `order` and store it, unless tables/ already holds a higher order.
+
+    Returns the run's measurements: wall time (s), main-process peak (MiB) and the expansion's stage statistics.
+    """
     name, _, assignments = request.partition(":")
     couplings = dict(item.split("=") for item in assignments.split(",")) if assignments else {}
+    tag = "".join(f"-{k}_{v}" for k, v in couplings.items())
+    path = TABLES_DIR / f"{name}-heisenberg-s1_2{tag}.json"
     spec = load_lattice(name)
     model = build_model(spec, couplings=couplings)
     start = time.perf_counter()
@@ -47,10 +54,13 @@ def make_table(request: str, order: int) -> None:
         "machine": f"{platform.machine()}, {os.cpu_count()} cores, {platform.system()} {platform.release()}",
         "stats": {k: (round(v, 2) if isinstance(v, float) else v) for k, v in ls.stats.items()},
     }
-    tag = "".join(f"-{k}_{v}" for k, v in couplings.items())
-    path = TABLES_DIR / f"{name}-heisenberg-s1_2{tag}.json"
-    write_json_atomic(series.to_json_dict(), path)
-    print(f"{name}: order {order} in {wall:.1f} s -> {path}", flush=True)
+    shipped = json.loads(path.read_text())["order"] if path.exists() else 0
+    if shipped > order:
+        print(f"{name}: order {order} in {wall:.1f} s; {path} keeps its order {shipped}", flush=True)
+    else:
+        write_json_atomic(series.to_json_dict(), path)
+        print(f"{name}: order {order} in {wall:.1f} s -> {path}", flush=True)
+    return {"wall": wall, "peak_mib": peak_mib, **ls.stats}
 
 
 def main(argv: list[str]) -> int:
