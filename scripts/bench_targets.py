@@ -13,6 +13,7 @@ the projected time of the target order, t(last) * growth^(target - last): an ext
 
 --results FILE keeps the measurements as JSON (default: bench_targets.json in the current folder); a rerun
 skips the orders already in it, so an interrupted benchmark resumes.
+--report prints the report of the results file without running anything.
 --tables stores the series of spin-1/2 nearest-neighbour targets in tables/ through scripts/make_tables.py
 (a table is only replaced by a higher order), so the shipped tables come from these cold runs; those runs use
 make_tables' default of one worker per core.
@@ -110,7 +111,7 @@ def bench_target(name: str, results: dict, args, save) -> None:
         else:
             g = growth(times)
             projected = times[-1] * g if g else 0.0
-            if projected and spent + projected > args.budget:
+            if spent >= args.budget or spent + projected > args.budget:
                 print(f"{name}: order {order} projected {projected:.0f} s, beyond the budget; stop", flush=True)
                 break
             r = run_order(target, order, args.workers, args.tables and target["table"],
@@ -156,6 +157,7 @@ def main() -> int:
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--results", type=Path, default=Path("bench_targets.json"))
     parser.add_argument("--tables", action="store_true", help="store spin-1/2 nearest-neighbour series in tables/")
+    parser.add_argument("--report", action="store_true", help="only print the report of the results file")
     args = parser.parse_args()
     unknown = [n for n in args.targets if n not in TARGETS]
     if unknown:
@@ -168,7 +170,7 @@ def main() -> int:
     print(f"# cold-cache runs, {args.workers} worker(s), budget {args.budget:.0f} s per target; load average at "
           f"start {os.getloadavg()[0]:.1f}; {os.cpu_count()} cores", flush=True)
     try:
-        for name in args.targets:
+        for name in [] if args.report else args.targets:
             bench_target(name, results, args, save)
     except KeyboardInterrupt:
         print(f"\ninterrupted; finished orders are kept in {args.results}", file=sys.stderr)
