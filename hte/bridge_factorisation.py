@@ -54,7 +54,7 @@ from hte.canonical import certificate_to_graph
 from hte.enumeration import enumerate_bond_clusters
 from hte.exact import QUANTITIES
 from hte.graph import ColouredGraph
-from hte.valued_graph import ValuedGraph, make_valued
+from hte.valued_graph import ValuedGraph, make_valued, with_values_of
 
 ROOT, OTHER = 1, 0  # third entry of a rooted vertex value (S, D, mark)
 
@@ -188,9 +188,7 @@ class RootedWeights:
             memo_key = (palettes, cert)
             sub = self._valued_subgraph.get(memo_key)
             if sub is None:
-                g = certificate_to_graph(cert)
-                sub = make_valued(g.n_vertices, [rvg.vertex_values[c] for c in g.vertex_colours],
-                                  [(u, v, rvg.edge_values[c]) for u, v, c in g.edges])
+                sub = with_values_of(rvg, certificate_to_graph(cert))
                 self._valued_subgraph[memo_key] = sub
                 self.valued.setdefault(sub.key, sub)
             result[sub.key] = result.get(sub.key, 0) + count

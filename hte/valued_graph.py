@@ -40,6 +40,12 @@ def make_valued(n: int, vertex_values, edges) -> ValuedGraph:
     return ValuedGraph(key, cg, tuple(vpal), tuple(epal))
 
 
+def with_values_of(vg: ValuedGraph, graph: ColouredGraph) -> ValuedGraph:
+    """The canonical ValuedGraph of `graph` (typically a subgraph of vg) whose colours index vg's value palettes."""
+    return make_valued(graph.n_vertices, [vg.vertex_values[c] for c in graph.vertex_colours],
+                       [(u, v, vg.edge_values[c]) for u, v, c in graph.edges])
+
+
 def cert_text(graph: ColouredGraph) -> str:
     """The text "n|vertex colours|edges" of a (canonically labelled) coloured graph, as used in valued keys."""
     colours = ".".join(str(c) for c in graph.vertex_colours)

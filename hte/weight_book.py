@@ -31,7 +31,7 @@ from hte.exact import QUANTITIES, cluster_cumulants
 from hte.executors import run_jobs
 from hte.graph import count_bridges
 from hte.rooted_series import rooted_cluster_series
-from hte.valued_graph import ValuedGraph, hamiltonian_of, make_valued, site_graph
+from hte.valued_graph import ValuedGraph, hamiltonian_of, site_graph, with_values_of
 
 CACHE_FORMAT = "raw-v1"
 ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
@@ -271,9 +271,7 @@ class WeightBook:
             memo = (local_key, vg.vertex_values, vg.edge_values)  # local colours index vg's value palettes
             sub = self._valued_subgraph.get(memo)
             if sub is None:
-                g = key_to_graph(local_key)
-                sub = make_valued(g.n_vertices, [vg.vertex_values[c] for c in g.vertex_colours],
-                                  [(u, v, vg.edge_values[c]) for u, v, c in g.edges])
+                sub = with_values_of(vg, key_to_graph(local_key))
                 self._valued_subgraph[memo] = sub
                 self.valued.setdefault(sub.key, sub)
             result[sub.key] = result.get(sub.key, 0) + count
