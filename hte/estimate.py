@@ -2,8 +2,8 @@
 
 The estimate is deliberately simple and says so: the cluster and graph-class counts are enumerated exactly
 up to the size where that takes about a second, then extrapolated with the last measured growth factors;
-the enumeration time uses the measured time per cluster; the kernel time scales a measured kernel call on a
-sample cluster by the growth of the largest S^z sector (the kernel's cost grows like its square); the memory is
+the enumeration time uses the measured time per cluster; the kernel time of a cluster is a measured overhead
+plus a measured unit times the square of its largest S^z sector (:func:`kernel_cost_model`); the memory is
 the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
 blocks) per worker.  Clusters that the run never diagonalises are left out of both: at the top order, trees
 (every bond a bridge) get their T chi and M4 weights from the bridge factorisation (hte.bridge_factorisation),
@@ -23,6 +23,7 @@ from hte.clusters import enumerate_clusters
 from hte.errors import ResourceLimitError
 
 _PROBE_CLUSTERS = 200_000
+_PROBE_SECTOR = 2000  # the kernel-cost probe's largest sector (about 0.1-0.5 s at orders 10-18)
 _BLOCK_BYTES = 3 * 2**20 * 8  # the kernel's propagation buffers (hte/exact.py)
 
 
@@ -127,24 +128,37 @@ def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = Fal
                        top, int(memory), n)
 
 
-def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, lnz_only: bool) -> float:
-    """Projected kernel time: measured on sample classes, scaled by (largest sector)^2 to larger clusters."""
+def _path_seconds(n_sites: int, twice_spin: int, order: int) -> float:
+    """Wall time of the exact kernel on an open path of n_sites spins to `order`."""
     from hte.exact import ClusterHamiltonian, cluster_cumulants
 
     spin = Fraction(twice_spin, 2)
-    affordable = [c for c in census.classes if largest_sector(c.n_sites, twice_spin) <= 4000]
-    if not affordable:
-        affordable = [min(census.classes, key=lambda c: c.n_sites)]
-    probe_sites = max(c.n_sites for c in affordable)
-    sample = [c for c in affordable if c.n_sites == probe_sites][:3]
+    ham = ClusterHamiltonian(spins=(spin,) * n_sites,
+                             bonds=tuple((i, i + 1, Fraction(1), Fraction(1)) for i in range(n_sites - 1)))
     start = time.perf_counter()
-    for c in sample:
-        g = c.graph
-        cluster_cumulants(ClusterHamiltonian(spins=(spin,) * g.n_vertices,
-                                             bonds=tuple((u, v, Fraction(1), Fraction(1)) for u, v, _ in g.edges)),
-                          order)
-    probe_s = (time.perf_counter() - start) / len(sample)
-    probe_dim = largest_sector(probe_sites, twice_spin)
+    cluster_cumulants(ham, order)
+    return time.perf_counter() - start
+
+
+def kernel_cost_model(twice_spin: int, order: int) -> tuple[float, float]:
+    """(overhead s, s per squared sector state): kernel time of a cluster ~ overhead + unit * (largest sector)^2.
+
+    Both are measured at the run's order (the number of primes and of propagation steps grow with it): the
+    overhead on a two-site cluster, the unit on the longest path whose largest sector has at most
+    _PROBE_SECTOR states.
+    """
+    _path_seconds(2, twice_spin, order)  # compile and warm up
+    overhead = _path_seconds(2, twice_spin, order)
+    sites = 2
+    while largest_sector(sites + 1, twice_spin) <= _PROBE_SECTOR:
+        sites += 1
+    unit = max(_path_seconds(sites, twice_spin, order) - overhead, 0.0) / largest_sector(sites, twice_spin) ** 2
+    return overhead, unit
+
+
+def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, lnz_only: bool) -> float:
+    """Projected kernel time: the cost model of :func:`kernel_cost_model` summed over the diagonalised classes."""
+    overhead, unit = kernel_cost_model(twice_spin, order)
     # sites of the classes per size; beyond the census, each extra bond adds at most one site
     sizes: dict[int, list[int]] = {}
     for c in census.classes:
@@ -156,7 +170,7 @@ def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, ln
             sites, factor = sizes[n], 1.0
         else:
             sites, factor = [k + (n - top) for k in sizes[top]], class_growth ** (n - top)
-        total += factor * sum(probe_s * (largest_sector(k, twice_spin) / probe_dim) ** 2
+        total += factor * sum(overhead + unit * largest_sector(k, twice_spin) ** 2
                               for k in sites if diagonalised(n, k, order, lnz_only))
     return total
 
