@@ -27,6 +27,19 @@ Derivation.  Let b = (a, c) be a bridge of the connected graph G: removing it le
        W_G(m2) = -2 Jz_b U_1^A(a)[beta^{E_A}] U_1^B(c)[beta^{E_B}] beta^E,
        W_G(m4) = -4 Jz_b (U_1^A U_3^B + U_3^A U_1^B)[top coefficients] beta^E,   E = E_A + E_B + 1,
    all lower coefficients vanish, and W_G(ln Z) = 0 (a bridge appears twice in ln Z: beta^{E + bridges}).
+6. One bond below the top order: a graph with E = order - 1 bonds and two bridges b1, b2.  Its beta^order
+   coefficient has total degree E + 1 in the couplings with every bond present, so exactly one bond appears
+   twice; split it by the degree in b1 (degree 0 is absent in a linked weight, degree >= 3 is too high):
+   * the J_b1-linear part is point 3-4's product across b1, now at beta^order: -2 Jz_b1 (U_1^A[E_A] U_1^B[E_B + 1]
+     + U_1^A[E_A + 1] U_1^B[E_B]) for m2, likewise for m4; it needs the rooted weights one order above their
+     first, which the rooted series hold;
+   * the J_b1^2 part has every other bond once, so it is linear in b2, hence the J_b1^2 part of the product
+     across b2: -2 Jz_b2 Q_1^{A'}[E_A' + 1] U_1^{B'}[E_B'] (m2) and -4 Jz_b2 (Q_1^{A'} U_3^{B'} + Q_3^{A'} U_1^{B'})
+     (m4), with A' the side of b2 containing b1 and Q_k^{A'} the part of U_k^{A'} quadratic in b1's couplings.
+     As U_k^{A'}[E_A' + 1] = c_1 t + c_2 t^2 when b1's couplings are scaled by t, Q_k = (U_k^{A'}(t = 2) -
+     2 U_k^{A'}(t = 1)) / 2: the rooted weights of A' and of A' with b1's couplings doubled.
+   The beta^E coefficient is point 5's, lower ones vanish, and W_G(ln Z) = 0 to beta^order (E + 2 > order).
+   So no tree of order - 1 bonds (order sites) is diagonalised any more.
 
 The rooted linked weights come from rooted subgraph subtraction (the Moebius inversion of the sum above):
 U(A, a) = u(A, a) - sum_{A'} c(A', A) U(A', a) - u(a alone), over the connected proper rooted subgraphs A' of
@@ -53,7 +66,7 @@ import numpy as np
 from hte.canonical import certificate_to_graph
 from hte.enumeration import enumerate_bond_clusters
 from hte.exact import QUANTITIES
-from hte.graph import ColouredGraph
+from hte.graph import ColouredGraph, count_bridges
 from hte.valued_graph import ValuedGraph, make_valued, with_values_of
 
 ROOT, OTHER = 1, 0  # third entry of a rooted vertex value (S, D, mark)
@@ -95,27 +108,76 @@ def _bridge_sides(graph) -> list[tuple[int, set]]:
     return result
 
 
-def split_at_best_bridge(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
-    """The rooted halves (A, a), (B, c) and Jz_b of the bridge b = (a, c) whose larger half has the fewest bonds."""
+def factorisable(graph: ColouredGraph, order: int) -> bool:
+    """True when the weight of `graph` to beta^order follows from rooted weights of its parts: E = order bonds and
+    a bridge, or E = order - 1 bonds and two bridges (module docstring, points 5 and 6)."""
+    if graph.n_edges == order:
+        return count_bridges(graph) >= 1
+    return graph.n_edges == order - 1 and count_bridges(graph) >= 2
+
+
+def _bonds_inside(graph: ColouredGraph, side: set) -> int:
+    return sum(1 for u, v, _ in graph.edges if u in side and v in side)
+
+
+def _rooted_part(vg: ValuedGraph, members, root: int, doubled: int | None = None) -> ValuedGraph:
+    """The rooted valued subgraph induced by `members` (vertices of vg.graph), rooted at `root`; the bond numbered
+    `doubled` (if any) gets twice its couplings (Jxy, Jz)."""
+    g = vg.graph
+    index = {v: i for i, v in enumerate(sorted(members))}
+    values = [vg.vertex_values[g.vertex_colours[v]] + ((ROOT if v == root else OTHER),) for v in sorted(members)]
+    edges = []
+    for k, (u, v, colour) in enumerate(g.edges):
+        if u in index and v in index:
+            xy, z = vg.edge_values[colour]
+            edges.append((index[u], index[v], (2 * xy, 2 * z) if k == doubled else (xy, z)))
+    return make_valued(len(index), values, edges)
+
+
+def _best_bridge(vg: ValuedGraph) -> tuple[int, set]:
+    """(bond number, side of its first end) of the bridge whose larger half has the fewest bonds."""
     g = vg.graph
     sides = _bridge_sides(g)
     if not sides:
         raise ValueError(f"graph {vg.key} has no bridge")
 
     def larger_half(item):
-        k, side = item
-        inside = sum(1 for u, _, _ in g.edges if u in side) - 1  # the bridge has one end inside
+        inside = _bonds_inside(g, item[1])
         return max(inside, g.n_edges - 1 - inside)
 
-    bridge, side = min(sides, key=larger_half)
+    return min(sides, key=larger_half)
+
+
+def split_at_best_bridge(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
+    """The rooted halves (A, a), (B, c) and Jz_b of the bridge b = (a, c) whose larger half has the fewest bonds."""
+    g = vg.graph
+    bridge, side = _best_bridge(vg)
     a, c, colour = g.edges[bridge]
-    halves = []
-    for root, members in ((a, sorted(side)), (c, sorted(set(range(g.n_vertices)) - side))):
-        index = {v: i for i, v in enumerate(members)}
-        values = [vg.vertex_values[g.vertex_colours[v]] + ((ROOT if v == root else OTHER),) for v in members]
-        edges = [(index[u], index[v], vg.edge_values[col]) for u, v, col in g.edges if u in index and v in index]
-        halves.append(make_valued(len(members), values, edges))
-    return halves[0], halves[1], vg.edge_values[colour][1]
+    rest = set(range(g.n_vertices)) - side
+    return _rooted_part(vg, side, a), _rooted_part(vg, rest, c), vg.edge_values[colour][1]
+
+
+def split_for_second_order(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, ValuedGraph, Fraction]:
+    """For the J_b1^2 part (module docstring, point 6): b1 is the bridge of :func:`split_at_best_bridge`, b2 the
+    other bridge whose side containing b1 has the fewest bonds.  Returns that side A' rooted at b2's end in it,
+    the same with b1's couplings doubled, the other side B' rooted at b2's other end, and Jz_b2."""
+    g = vg.graph
+    first, _ = _best_bridge(vg)
+    ends = set(g.edges[first][:2])
+    candidates = []
+    for k, side in _bridge_sides(g):
+        if k == first:
+            continue
+        near = side if ends <= side else set(range(g.n_vertices)) - side
+        candidates.append((_bonds_inside(g, near), k, near))
+    if not candidates:
+        raise ValueError(f"graph {vg.key} has fewer than two bridges")
+    _, second, near = min(candidates, key=lambda item: item[:2])
+    a, c, colour = g.edges[second]
+    near_root, far_root = (a, c) if a in near else (c, a)
+    far = set(range(g.n_vertices)) - near
+    return (_rooted_part(vg, near, near_root), _rooted_part(vg, near, near_root, doubled=first),
+            _rooted_part(vg, far, far_root), vg.edge_values[colour][1])
 
 
 def rooted_subgraph_certificates(graph: ColouredGraph, root: int) -> list[tuple[tuple, int]]:
@@ -163,6 +225,7 @@ class RootedWeights:
         self.indexed: set[str] = set()
         self._unrooted: dict[str, ValuedGraph] = {}
         self._halves: dict[str, tuple] = {}
+        self._second_order: dict[str, tuple] = {}
         self._palettes: dict[tuple, int] = {}  # (vertex values, edge values) -> a small number
         self._valued_subgraph: dict[tuple, ValuedGraph] = {}  # (palettes number, certificate) -> valued subgraph
 
@@ -206,10 +269,18 @@ class RootedWeights:
             self._halves[vg.key] = split_at_best_bridge(vg)
         return self._halves[vg.key]
 
+    def second_order_parts(self, vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, ValuedGraph, Fraction]:
+        """:func:`split_for_second_order` of `vg`, remembered."""
+        if vg.key not in self._second_order:
+            self._second_order[vg.key] = split_for_second_order(vg)
+        return self._second_order[vg.key]
+
     def needed_for(self, vg: ValuedGraph) -> list[ValuedGraph]:
         """The (unrooted) valued graphs whose rooted series the factorised weight of `vg` uses."""
-        half_a, half_b, _ = self.halves(vg)
-        return self.needed_graphs(half_a) + self.needed_graphs(half_b)
+        parts = list(self.halves(vg)[:2])
+        if vg.graph.n_edges < self.order:
+            parts += self.second_order_parts(vg)[:3]
+        return [graph for part in parts for graph in self.needed_graphs(part)]
 
     def needed_graphs(self, rvg: ValuedGraph) -> list[ValuedGraph]:
         """The (unrooted) valued graphs whose rooted series :meth:`top` needs for the rooted graph `rvg`."""
@@ -247,27 +318,42 @@ class RootedWeights:
         self._numerators[key] = weight
         return weight
 
-    def top(self, rvg: ValuedGraph) -> tuple[Fraction, Fraction]:
-        """U_1 and U_3 of the rooted graph `rvg` at beta^(its bond count), their first nonzero order."""
-        n = rvg.graph.n_edges
+    def coefficient(self, rvg: ValuedGraph, n: int) -> tuple[Fraction, Fraction]:
+        """U_1 and U_3 of the rooted graph `rvg` at beta^n (zero below its bond count; n < order)."""
         first, third = self._linked_numerators(rvg.key)
         dens = self._common_denominators()
         return Fraction(first[n], dens[0][n]), Fraction(third[n], dens[1][n])
 
+    def top(self, rvg: ValuedGraph) -> tuple[Fraction, Fraction]:
+        """U_1 and U_3 of the rooted graph `rvg` at beta^(its bond count), their first nonzero order."""
+        return self.coefficient(rvg, rvg.graph.n_edges)
 
-def factorised_top_weight(vg: ValuedGraph, order: int, rooted: RootedWeights) -> dict:
-    """Linked weight {lnz, m2, m4} (coefficients of beta^0..beta^order) of a graph with `order` bonds and a bridge.
 
-    Uses the bridge whose larger half is smallest; `rooted` must hold the rooted series of the graphs that
-    :meth:`RootedWeights.needed_for` names (see the module docstring for the formula).
-    """
-    if vg.graph.n_edges != order:
-        raise ValueError(f"the factorisation gives the weight of a graph with {order} bonds; {vg.key} has "
-                         f"{vg.graph.n_edges}")
+def factorised_weight(vg: ValuedGraph, order: int, rooted: RootedWeights) -> dict:
+    """Linked weight {lnz, m2, m4} (coefficients of beta^0..beta^order) of a graph that :func:`factorisable`
+    accepts, from rooted linked weights of its parts (module docstring, points 5 and 6); `rooted` must hold the
+    rooted series of the graphs that :meth:`RootedWeights.needed_for` names."""
+    if not factorisable(vg.graph, order):
+        raise ValueError(f"the weight of {vg.key} to beta^{order} does not factorise: it needs {order} bonds and a "
+                         f"bridge or {order - 1} bonds and two bridges")
+    n_bonds = vg.graph.n_edges
     half_a, half_b, jz = rooted.halves(vg)
-    first_a, third_a = rooted.top(half_a)
-    first_b, third_b = rooted.top(half_b)
+    ea, eb = half_a.graph.n_edges, half_b.graph.n_edges
     weight = {q: [Fraction(0)] * (order + 1) for q in QUANTITIES}
-    weight["m2"][order] = -2 * jz * first_a * first_b
-    weight["m4"][order] = -4 * jz * (first_a * third_b + third_a * first_b)
+    # J_b-linear part across the bridge b: -2 beta Jz_b U_1^A U_1^B (m2), -4 beta Jz_b (U_1^A U_3^B + U_3^A U_1^B)
+    for n in range(n_bonds, order + 1):
+        for i in range(ea, n - eb):  # i + j = n - 1 with i >= E_A, j >= E_B
+            first_a, third_a = rooted.coefficient(half_a, i)
+            first_b, third_b = rooted.coefficient(half_b, n - 1 - i)
+            weight["m2"][n] += -2 * jz * first_a * first_b
+            weight["m4"][n] += -4 * jz * (first_a * third_b + third_a * first_b)
+    if n_bonds < order:
+        # J_b1^2 part at beta^order, linear in the second bridge b2
+        near, near_doubled, far, jz2 = rooted.second_order_parts(vg)
+        e = near.graph.n_edges
+        (first_1, third_1), (first_2, third_2) = rooted.coefficient(near, e + 1), rooted.coefficient(near_doubled, e + 1)
+        square_first, square_third = (first_2 - 2 * first_1) / 2, (third_2 - 2 * third_1) / 2
+        first_far, third_far = rooted.top(far)
+        weight["m2"][order] += -2 * jz2 * square_first * first_far
+        weight["m4"][order] += -4 * jz2 * (square_first * third_far + square_third * first_far)
     return weight

@@ -24,7 +24,7 @@ import time
 from fractions import Fraction
 from math import lcm
 
-from hte.bridge_factorisation import RootedWeights, factorised_top_weight
+from hte.bridge_factorisation import RootedWeights, factorisable, factorised_weight
 from hte.canonical import key_to_graph
 from hte.clusters import subgraph_counts
 from hte.exact import QUANTITIES, cluster_cumulants
@@ -106,6 +106,8 @@ class WeightBook:
         self._numerators: dict[str, dict] = {}
         self._valued_subgraph: dict[tuple, ValuedGraph] = {}
         self._site_key: dict[tuple, str] = {}
+        self._factorisable: dict[str, bool] = {}
+        self._factorised_weights: dict[str, dict] = {}  # key -> weight (Fractions) of the factorised graphs
         self.computed = 0
         self.from_cache = 0
 
@@ -119,8 +121,11 @@ class WeightBook:
         return self.lnz_only and vg.graph.n_edges + count_bridges(vg.graph) > self.order
 
     def factorised(self, vg: ValuedGraph) -> bool:
-        """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge)."""
-        return self.factorise and vg.graph.n_edges == self.order and count_bridges(vg.graph) > 0
+        """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge, or
+        order - 1 bonds and two bridges; :func:`hte.bridge_factorisation.factorisable`)."""
+        if vg.key not in self._factorisable:
+            self._factorisable[vg.key] = self.factorise and factorisable(vg.graph, self.order)
+        return self._factorisable[vg.key]
 
     def _wants_rooted(self, vg: ValuedGraph) -> bool:
         return vg.key in self.rooted_wanted
@@ -137,8 +142,8 @@ class WeightBook:
         todo = {}
         for vg in graphs:
             self.valued.setdefault(vg.key, vg)
-            if self.negligible(vg) or self.factorised(vg):
-                continue
+            if self.negligible(vg) or (self.factorised(vg) and not self._wants_rooted(vg)):
+                continue  # a factorised graph is still diagonalised when a larger one uses its rooted series
             if vg.key not in self.raw or (self._wants_rooted(vg) and vg.key not in self.rooted.indexed):
                 todo[vg.key] = vg
         if not todo:
@@ -185,32 +190,44 @@ class WeightBook:
             bar.close()
 
     def ensure_weights(self, graphs: list[ValuedGraph]) -> None:
-        """Compute (or fetch) every raw series that the linked weights of `graphs` need: those of the graphs, then
-        those of their subgraphs and single sites and the rooted series of the factorised graphs (subgraphs of
-        lattice clusters are lattice clusters, but in symbolic mode a subgraph can meet an evaluation point that
-        no graph class asked for)."""
+        """Prepare the linked weights of `graphs`: compute (or fetch) the raw series of the graphs, of their
+        subgraphs and single sites, and the rooted series the factorised ones use; then the factorised weights.
+        (Subgraphs of lattice clusters are lattice clusters, but in symbolic mode a subgraph can meet an
+        evaluation point that no graph class asked for, so the subgraphs are prepared the same way.)"""
         self.ensure_raw(graphs)
-        closure = {}
+        subgraphs, rooted = {}, {}
         for vg in graphs:
             if self.factorised(vg):
-                closure.update((sub.key, sub) for sub in self.rooted.needed_for(vg))
+                rooted.update((sub.key, sub) for sub in self.rooted.needed_for(vg))
             elif vg.graph.n_edges > 1 and not self.negligible(vg):
                 for sub_key in self._subgraphs(vg):
-                    if sub_key not in self.raw:
-                        closure[sub_key] = self.valued[sub_key]
+                    if sub_key not in self.raw and sub_key not in self._factorised_weights:
+                        subgraphs[sub_key] = self.valued[sub_key]
             for v in vg.vertex_values:
                 site_key = self._site(v)
                 if site_key not in self.raw:
-                    closure[site_key] = self.valued[site_key]
-        self.ensure_raw(list(closure.values()))
+                    subgraphs[site_key] = self.valued[site_key]
+        self.ensure_raw(list(rooted.values()))
+        if subgraphs:
+            self.ensure_weights(list(subgraphs.values()))
+        for vg in graphs:
+            if self.factorised(vg) and vg.key not in self._factorised_weights:
+                weight = factorised_weight(vg, self.order, self.rooted)
+                self._factorised_weights[vg.key] = weight
+                self._widen(weight)
+                self.factorised_count += 1
 
     def _store_rooted(self, key: str, text: str) -> None:
         data = json.loads(text)
         self.rooted.add(self.valued[key], *([[Fraction(x) for x in s] for s in data[u]] for u in ("u1", "u3")))
 
     def _store_raw(self, key: str, series: dict) -> None:
-        """Keep a raw series; widen the common denominators (rescaling the integer weights kept so far)."""
+        """Keep a raw series and widen the common denominators to it."""
         self.raw[key] = series
+        self._widen(series)
+
+    def _widen(self, series: dict) -> None:
+        """Widen the common denominators to those of `series` (rescaling the integer weights kept so far)."""
         for q in QUANTITIES:
             dens = self.denominators[q]
             for n, x in enumerate(series[q]):
@@ -222,11 +239,7 @@ class WeightBook:
                     dens[n] = wider
 
     def weight(self, key: str) -> dict:
-        """Linked weight W of the valued graph `key` as Fractions (its raw series and those of its subgraphs
-        must be known)."""
-        if key not in self.linked and self.factorised(self.valued[key]):
-            self.linked[key] = factorised_top_weight(self.valued[key], self.order, self.rooted)
-            self.factorised_count += 1
+        """Linked weight W of the valued graph `key` as Fractions (after :meth:`ensure_weights` of the graph)."""
         if key not in self.linked:
             nums = self._linked_numerators(key)
             self.linked[key] = {q: [Fraction(a, d) for a, d in zip(nums[q], self.denominators[q])]
@@ -240,6 +253,11 @@ class WeightBook:
         vg = self.valued[key]
         if self.negligible(vg):
             w = {q: [0] * (self.order + 1) for q in QUANTITIES}
+        elif self.factorised(vg):
+            if key not in self._factorised_weights:
+                raise KeyError(f"factorised weight of {key} not prepared: call ensure_weights first")
+            w = {q: [x.numerator * (d // x.denominator) for x, d in zip(self._factorised_weights[key][q],
+                                                                      self.denominators[q])] for q in QUANTITIES}
         else:
             raw = self.raw[key]
             w = {q: [x.numerator * (d // x.denominator) for x, d in zip(raw[q], self.denominators[q])]

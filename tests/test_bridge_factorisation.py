@@ -1,10 +1,10 @@
 """The bridge factorisation (hte.bridge_factorisation) against brute-force linked weights.
 
 Convention: H = sum_b [Jxy (SxSx + SySy) + Jz SzSz] + sum_i D_i (S^z_i)^2 - h M, k_B = g mu_B = 1.  For every
-graph class with E = order bonds and at least one bridge, the factorised weight (no diagonalisation of the
-graph, rooted linked weights of its two halves) must equal exactly the weight found by diagonalising the graph
-and all its subgraphs and subtracting (hte.weight_book.WeightBook without the factorisation): an independent
-route through the exact kernel.
+graph class with E = order bonds and at least one bridge, and for every class with E = order - 1 bonds and at
+least two bridges, the factorised weight (no diagonalisation of the graph, rooted linked weights of its parts)
+must equal exactly the weight found by diagonalising the graph and all its subgraphs and subtracting
+(hte.weight_book.WeightBook without the factorisation): an independent route through the exact kernel.
 """
 
 from __future__ import annotations
@@ -13,10 +13,15 @@ from fractions import Fraction
 
 import pytest
 
-from hte.bridge_factorisation import RootedWeights, factorised_top_weight, split_at_best_bridge
+from hte.bridge_factorisation import (
+    RootedWeights,
+    factorisable,
+    factorised_weight,
+    split_at_best_bridge,
+    split_for_second_order,
+)
 from hte.clusters import enumerate_clusters
 from hte.exact import QUANTITIES
-from hte.graph import count_bridges
 from hte.lattice_file import load_lattice
 from hte.rooted_series import rooted_cluster_series
 from hte.valued_graph import hamiltonian_of, make_valued, site_graph
@@ -36,32 +41,41 @@ def _lattice_graphs(name: str, order: int, spin, couplings: dict, anisotropy) ->
             for c in census.classes] + [site_graph(value)]
 
 
-def _compare(name: str, order: int, spin=HALF, couplings=None, anisotropy=0) -> int:
-    """Assert factorised == brute-force weight for every top-order bridged class; return how many were checked."""
+def _add_rooted(rooted: RootedWeights, graphs, order: int) -> None:
+    for vg in graphs:
+        if vg.key not in rooted.indexed:
+            _, series = rooted_cluster_series(hamiltonian_of(vg), order)
+            rooted.add(vg, series.u1, series.u3)
+
+
+def _compare(name: str, order: int, spin=HALF, couplings=None, anisotropy=0) -> dict:
+    """Assert factorised == brute-force weight for every factorisable class (top order with a bridge, one bond
+    below with two bridges); return how many were checked per bond count."""
     couplings = couplings or {"J1": (Fraction(1), Fraction(1))}
     graphs = _lattice_graphs(name, order, spin, couplings, anisotropy)
     brute = WeightBook(order, bridge_factorisation=False)
     brute.ensure_raw(graphs)
     rooted = RootedWeights(order)
-    for vg in graphs:
-        if vg.graph.n_edges < order:
-            _, series = rooted_cluster_series(hamiltonian_of(vg), order)
-            rooted.add(vg, series.u1, series.u3)
-    top = [vg for vg in graphs if vg.graph.n_edges == order and count_bridges(vg.graph)]
-    nonzero = 0
-    for vg in top:
-        factorised = factorised_top_weight(vg, order, rooted)
+    _add_rooted(rooted, [vg for vg in graphs if vg.graph.n_edges < order], order)
+    chosen = [vg for vg in graphs if factorisable(vg.graph, order)]
+    checked, nonzero = {}, {}
+    for vg in chosen:
+        _add_rooted(rooted, rooted.needed_for(vg), order)  # halves with a doubled bond are not lattice clusters
+        factorised = factorised_weight(vg, order, rooted)
         reference = brute.weight(vg.key)
         assert {q: reference[q] for q in QUANTITIES} == factorised, vg.key
-        nonzero += factorised["m2"][order] != 0
-    assert nonzero > 0  # the comparison is not between zeros only
-    return len(top)
+        e = vg.graph.n_edges
+        checked[e] = checked.get(e, 0) + 1
+        nonzero[e] = nonzero.get(e, 0) + (factorised["m2"][order] != 0 and factorised["m4"][order] != 0)
+    assert all(nonzero.values()), nonzero  # for each bond count, the comparison is not between zeros only
+    return checked
 
 
 @pytest.mark.parametrize("name, order", [("chain", 10), ("square", 8), ("kagome", 8), ("honeycomb", 8),
                                          ("triangular", 7)])
 def test_heisenberg_spin_half_lattices(name, order):
-    assert _compare(name, order) >= 1
+    checked = _compare(name, order)
+    assert checked[order] >= 1 and checked[order - 1] >= 1
 
 
 def test_spin_one_square():
@@ -96,7 +110,7 @@ def test_chain_bond_and_path_by_hand():
         for vg in pieces:
             _, series = rooted_cluster_series(hamiltonian_of(vg), order)
             rooted.add(vg, series.u1, series.u3)
-        assert factorised_top_weight(graph, order, rooted)["m2"] == expected
+        assert factorised_weight(graph, order, rooted)["m2"] == expected
 
 
 def test_the_most_balanced_bridge_is_chosen():
@@ -107,10 +121,25 @@ def test_the_most_balanced_bridge_is_chosen():
     assert (half_a.graph.n_edges, half_b.graph.n_edges, jz) == (2, 2, 1)
 
 
+def test_second_order_parts_of_a_path():
+    # Path 0-1-2-3-4-5: b1 is the middle bond (2, 3); of the other bridges, (1, 2) and (3, 4) leave 3 bonds on
+    # b1's side, (1, 2) comes first.  A' = path 2-3-4-5 rooted at 2, the same with bond (2, 3) doubled, B' = 0-1.
+    j = (Fraction(1), Fraction(1))
+    path = make_valued(6, [(HALF, Fraction(0))] * 6, [(k, k + 1, j) for k in range(5)])
+    near, doubled, far, jz = split_for_second_order(path)
+    assert (near.graph.n_edges, doubled.graph.n_edges, far.graph.n_edges, jz) == (3, 3, 1, 1)
+    assert sorted(doubled.edge_values) == [j, (Fraction(2), Fraction(2))] and near.edge_values == (j,)
+    assert factorisable(path.graph, 6) and factorisable(path.graph, 5) and not factorisable(path.graph, 7)
+    # a triangle with one pendant bond has a single bridge: factorisable at the top order only
+    tadpole = make_valued(4, [(HALF, Fraction(0))] * 4, [(0, 1, j), (1, 2, j), (2, 0, j), (2, 3, j)])
+    assert factorisable(tadpole.graph, 4) and not factorisable(tadpole.graph, 5)
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("name, order", [("square", 10), ("kagome", 10), ("triangular", 9), ("honeycomb", 11)])
 def test_heisenberg_spin_half_lattices_higher_orders(name, order):
-    assert _compare(name, order) >= 1
+    checked = _compare(name, order)
+    assert checked[order] >= 1 and checked[order - 1] >= 1
 
 
 # ------------------------------------------------------------------------------------------ integration

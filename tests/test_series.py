@@ -285,13 +285,7 @@ def test_linked_weights_vanish_below_their_bond_count():
         edges = [(u, v, (Fraction(int(rng.integers(1, 3))), Fraction(int(rng.integers(-2, 3))))) for u, v in g.edges]
         spins = [(Fraction(int(rng.integers(1, 3)), 2), Fraction(0)) for _ in range(n)]
         vg = make_valued(n, spins, edges)
-        graphs = [vg]
-        book.ensure_raw(graphs)
-        closure = [book.valued[k] for k in book._subgraphs(vg)]
-        from hte.valued_graph import site_graph
-
-        closure += [site_graph(v) for v in vg.vertex_values]
-        book.ensure_raw(closure)
+        book.ensure_weights([vg])
         w = book.weight(vg.key)
         n_edges = g.number_of_edges()
         n_bridges = sum(1 for _ in nx.bridges(g))
