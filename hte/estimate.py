@@ -6,7 +6,8 @@ the enumeration time uses the measured time per cluster; the kernel time of a cl
 plus a measured unit times the square of its largest S^z sector (:func:`kernel_cost_model`); the memory is
 the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
 blocks) per worker.  Clusters that the run never diagonalises are left out of both: at the top order, trees
-(every bond a bridge) get their T chi and M4 weights from the bridge factorisation (hte.bridge_factorisation),
+(every bond a bridge) and one bond below it trees of two bonds or more get their T chi and M4 weights from the
+bridge factorisation (hte.bridge_factorisation),
 and with ln Z only a tree of E bonds first contributes at beta^(2E) (every bridge appears twice), so the
 largest diagonalised cluster has `order` sites rather than order + 1.  Expect the time to be right within a factor of a few; the memory bound is the one that matters for
 refusing a run.
@@ -85,13 +86,15 @@ def available_memory() -> int:
 def diagonalised(n_bonds: int, n_sites: int, order: int, lnz_only: bool) -> bool:
     """Whether a run to `order` diagonalises a graph class of n_bonds bonds on n_sites sites.
 
-    Trees (n_sites = n_bonds + 1) are skipped at the top order (bridge factorisation) and, for ln Z alone,
-    whenever 2 n_bonds > order.  Other graphs with bridges are skipped too by the run but counted here, so the
-    estimate errs on the expensive side.
+    Trees (n_sites = n_bonds + 1) are skipped at the top order and, with two bonds or more, one bond below it
+    (bridge factorisation), and, for ln Z alone, whenever 2 n_bonds > order.  Other graphs with bridges are
+    skipped too by the run but counted here, so the estimate errs on the expensive side.
     """
     if n_sites != n_bonds + 1:
         return True
-    return 2 * n_bonds <= order if lnz_only else n_bonds < order
+    if lnz_only:
+        return 2 * n_bonds <= order
+    return n_bonds < order - 1 or (n_bonds == order - 1 and n_bonds < 2)
 
 
 def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = False) -> RunEstimate:

@@ -23,11 +23,14 @@ def test_largest_sector_is_the_central_multinomial_coefficient():
 
 
 def test_trees_at_the_top_order_are_not_diagonalised():
-    # bridge factorisation: a tree of E = order bonds (E + 1 sites) is never diagonalised ...
+    # bridge factorisation: a tree of E = order bonds (E + 1 sites) is never diagonalised, nor one of
+    # order - 1 >= 2 bonds (two bridges) ...
     assert not diagonalised(n_bonds=8, n_sites=9, order=8, lnz_only=False)
-    # ... but one bond below the top order it is, and so is a graph with a cycle at the top order
-    assert diagonalised(n_bonds=7, n_sites=8, order=8, lnz_only=False)
+    assert not diagonalised(n_bonds=7, n_sites=8, order=8, lnz_only=False)
+    # ... but two bonds below the top order it is, and so is a graph with a cycle, and the single bond at order 2
+    assert diagonalised(n_bonds=6, n_sites=7, order=8, lnz_only=False)
     assert diagonalised(n_bonds=8, n_sites=8, order=8, lnz_only=False)
+    assert diagonalised(n_bonds=1, n_sites=2, order=2, lnz_only=False)
     # ln Z alone: a tree of E bonds starts at beta^(2E)
     assert diagonalised(n_bonds=4, n_sites=5, order=8, lnz_only=True)
     assert not diagonalised(n_bonds=5, n_sites=6, order=8, lnz_only=True)
@@ -37,7 +40,8 @@ def test_the_largest_diagonalised_chain_cluster_sets_the_memory():
     spec = load_lattice("chain")
     model = build_model(spec)
     estimate = estimate_run(spec, model, 10)
-    # the open 9-bond path (10 sites) is the largest cluster the run diagonalises; the 10-bond path is factorised
+    # the 10-bond ring does not embed in the chain, the paths of 10 and 9 bonds are factorised, so the open 8-bond
+    # path would be the largest diagonalised cluster; the estimate keeps the bound of `order` sites
     assert estimate.largest_sector == comb(10, 5)
     assert estimate.clusters == 10 and estimate.graph_classes == 10   # one path per bond count per cell
     assert estimate.memory_bytes > 0 and estimate.seconds > 0
