@@ -40,6 +40,27 @@ Derivation.  Let b = (a, c) be a bridge of the connected graph G: removing it le
      2 U_k^{A'}(t = 1)) / 2: the rooted weights of A' and of A' with b1's couplings doubled.
    The beta^E coefficient is point 5's, lower ones vanish, and W_G(ln Z) = 0 to beta^order (E + 2 > order).
    So no tree of order - 1 bonds (order sites) is diagonalised any more.
+7. Two bonds below the top order: a graph with E = order - 2 bonds and three bridges b1, b2, b3 such that b3
+   separates b1 from b2 (A3, the side of b3 containing b1; B3, the other, containing b2).  Each power of beta
+   carries one coupling or one D, so its beta^order coefficient has degree E + 2 in them, with every bond
+   present; split it by the degrees in b1 and b2:
+   * degree 1 in b1: the product across b1 at beta^order, -2 Jz_b1 sum_{i + j = order - 1} U_1^A[i] U_1^B[j]
+     (m2; i = E_A..E_A + 2), likewise for m4;
+   * degree >= 2 in b1 and 1 in b2: linear in b2, so the product across b2 with the factor of its side A2
+     containing b1 cut to its part R of degree >= 2 in b1: -2 Jz_b2 (R_1^{A2}[E_A2 + 1] U_1^{B2}[E_B2 + 1] +
+     R_1^{A2}[E_A2 + 2] U_1^{B2}[E_B2]) (m2) and -4 Jz_b2 sum (R_1 U_3 + R_3 U_1) (m4).  With b1's couplings
+     scaled by t, U^{A2}[E_A2 + 1] = c1 t + c2 t^2 (no t^0: linked), so R = Q = (U(2) - 2 U(1)) / 2 as in
+     point 6; U^{A2}[E_A2 + 2] = c1 t + c2 t^2 + c3 t^3, and solving U(1), U(2), U(3) for c1 = 3 U(1) - 3 U(2) / 2
+     + U(3) / 3 gives R = U(1) - c1 = -2 U(1) + 3 U(2) / 2 - U(3) / 3;
+   * degree >= 2 in b1 and in b2: then both are squared, every other bond appears once and D not at all, so it
+     is linear in b3, and b1, b2 lie on different sides of b3: -2 Jz_b3 Q_1^{A3}[E_A3 + 1] Q_1^{B3}[E_B3 + 1] (m2)
+     and -4 Jz_b3 (Q_1^{A3} Q_3^{B3} + Q_3^{A3} Q_1^{B3}) (m4), Q^{A3} quadratic in b1's couplings and Q^{B3} in
+     b2's, each from its side with and without that bridge doubled.
+   The beta^(E + 1) coefficient is point 6's (with the same b1), the beta^E coefficient point 5's, lower ones
+   vanish, and W_G(ln Z) = 0 to beta^order (E + 3 > order).  The parts with a scaled bond are new graphs, so the
+   triple is chosen to keep them small (:func:`excess_two_bridges`).  A graph with three bridges but no such
+   triple (a star of three bonds, a cycle with three pendant bonds) is diagonalised; among trees, that leaves
+   the stars.
 
 The rooted linked weights come from rooted subgraph subtraction (the Moebius inversion of the sum above):
 U(A, a) = u(A, a) - sum_{A'} c(A', A) U(A', a) - u(a alone), over the connected proper rooted subgraphs A' of
@@ -60,6 +81,7 @@ from __future__ import annotations
 
 from fractions import Fraction
 from math import lcm
+from typing import NamedTuple
 
 import numpy as np
 
@@ -108,35 +130,55 @@ def _bridge_sides(graph) -> list[tuple[int, set]]:
     return result
 
 
+def _separations(graph: ColouredGraph) -> list[tuple[int, list[int], list[int]]]:
+    """(b3, bridges on the side of b3's first end, bridges on its other side) for every bridge b3 of `graph` that
+    has other bridges on both of its sides, i.e. separates two bridges (module docstring, point 7)."""
+    sides = _bridge_sides(graph)
+    result = []
+    for k, side in sides:
+        near = [j for j, _ in sides if j != k and graph.edges[j][0] in side]
+        far = [j for j, _ in sides if j != k and graph.edges[j][0] not in side]
+        if near and far:
+            result.append((k, near, far))
+    return result
+
+
 def factorisable(graph: ColouredGraph, order: int) -> bool:
     """True when the weight of `graph` to beta^order follows from rooted weights of its parts: E = order bonds and
-    a bridge, or E = order - 1 bonds and two bridges (module docstring, points 5 and 6)."""
+    a bridge, E = order - 1 bonds and two bridges, or E = order - 2 bonds and three bridges one of which separates
+    the other two (module docstring, points 5, 6 and 7)."""
     if graph.n_edges == order:
         return count_bridges(graph) >= 1
-    return graph.n_edges == order - 1 and count_bridges(graph) >= 2
+    if graph.n_edges == order - 1:
+        return count_bridges(graph) >= 2
+    return graph.n_edges == order - 2 and count_bridges(graph) >= 3 and bool(_separations(graph))
 
 
 def _bonds_inside(graph: ColouredGraph, side: set) -> int:
     return sum(1 for u, v, _ in graph.edges if u in side and v in side)
 
 
-def _rooted_part(vg: ValuedGraph, members, root: int, doubled: int | None = None) -> ValuedGraph:
-    """The rooted valued subgraph induced by `members` (vertices of vg.graph), rooted at `root`; the bond numbered
-    `doubled` (if any) gets twice its couplings (Jxy, Jz)."""
+def _rooted_part(vg: ValuedGraph, members, root: int, scaled: tuple[int, int] | None = None) -> ValuedGraph:
+    """The rooted valued subgraph induced by `members` (vertices of vg.graph), rooted at `root`; with
+    scaled = (bond number, factor), that bond's couplings (Jxy, Jz) are multiplied by the factor."""
     g = vg.graph
     index = {v: i for i, v in enumerate(sorted(members))}
     values = [vg.vertex_values[g.vertex_colours[v]] + ((ROOT if v == root else OTHER),) for v in sorted(members)]
+    bond, factor = scaled or (None, 1)
     edges = []
     for k, (u, v, colour) in enumerate(g.edges):
         if u in index and v in index:
             xy, z = vg.edge_values[colour]
-            edges.append((index[u], index[v], (2 * xy, 2 * z) if k == doubled else (xy, z)))
+            edges.append((index[u], index[v], (factor * xy, factor * z) if k == bond else (xy, z)))
     return make_valued(len(index), values, edges)
 
 
-def _best_bridge(vg: ValuedGraph) -> tuple[int, set]:
-    """(bond number, side of its first end) of the bridge whose larger half has the fewest bonds."""
+def first_bridge(vg: ValuedGraph, order: int) -> int:
+    """Bond number of b1: the bridge whose larger half has the fewest bonds (the first by bond number among
+    equals); for a graph of order - 2 bonds, the b1 of :func:`excess_two_bridges`."""
     g = vg.graph
+    if g.n_edges == order - 2:
+        return excess_two_bridges(vg)[0]
     sides = _bridge_sides(g)
     if not sides:
         raise ValueError(f"graph {vg.key} has no bridge")
@@ -145,39 +187,110 @@ def _best_bridge(vg: ValuedGraph) -> tuple[int, set]:
         inside = _bonds_inside(g, item[1])
         return max(inside, g.n_edges - 1 - inside)
 
-    return min(sides, key=larger_half)
+    return min(sides, key=larger_half)[0]
 
 
-def split_at_best_bridge(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
-    """The rooted halves (A, a), (B, c) and Jz_b of the bridge b = (a, c) whose larger half has the fewest bonds."""
+def _side_with(graph: ColouredGraph, sides: dict, bridge: int, other: int) -> set:
+    """The vertices on the side of `bridge` that contains the bond `other` (`sides`: dict of :func:`_bridge_sides`)."""
+    side = sides[bridge]
+    return side if graph.edges[other][0] in side else set(range(graph.n_vertices)) - side
+
+
+def _split_across(vg: ValuedGraph, bridge: int, near: set,
+                  scaled: tuple[int, int] | None = None) -> tuple[ValuedGraph, ValuedGraph]:
+    """The side `near` of `bridge` rooted at the bridge's end in it (with `scaled` as in :func:`_rooted_part`),
+    and the other side rooted at the other end."""
+    a, c, _ = vg.graph.edges[bridge]
+    near_root, far_root = (a, c) if a in near else (c, a)
+    far = set(range(vg.graph.n_vertices)) - near
+    return _rooted_part(vg, near, near_root, scaled), _rooted_part(vg, far, far_root)
+
+
+def _jz(vg: ValuedGraph, bond: int) -> Fraction:
+    return vg.edge_values[vg.graph.edges[bond][2]][1]
+
+
+def split_at_best_bridge(vg: ValuedGraph, order: int) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
+    """The rooted halves (A, a), (B, c) and Jz_b1 of the bridge b1 = (a, c) of :func:`first_bridge`."""
+    bridge = first_bridge(vg, order)
+    side = dict(_bridge_sides(vg.graph))[bridge]  # the side of its first end a
+    return (*_split_across(vg, bridge, side), _jz(vg, bridge))
+
+
+def split_for_second_order(vg: ValuedGraph, order: int) -> tuple[ValuedGraph, ValuedGraph, ValuedGraph, Fraction]:
+    """For the J_b1^2 part (module docstring, point 6): b1 is the bridge of :func:`first_bridge`, b2 the other
+    bridge whose side containing b1 has the fewest bonds.  Returns that side A' rooted at b2's end in it, the
+    same with b1's couplings doubled, the other side B' rooted at b2's other end, and Jz_b2."""
     g = vg.graph
-    bridge, side = _best_bridge(vg)
-    a, c, colour = g.edges[bridge]
-    rest = set(range(g.n_vertices)) - side
-    return _rooted_part(vg, side, a), _rooted_part(vg, rest, c), vg.edge_values[colour][1]
-
-
-def split_for_second_order(vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, ValuedGraph, Fraction]:
-    """For the J_b1^2 part (module docstring, point 6): b1 is the bridge of :func:`split_at_best_bridge`, b2 the
-    other bridge whose side containing b1 has the fewest bonds.  Returns that side A' rooted at b2's end in it,
-    the same with b1's couplings doubled, the other side B' rooted at b2's other end, and Jz_b2."""
-    g = vg.graph
-    first, _ = _best_bridge(vg)
-    ends = set(g.edges[first][:2])
-    candidates = []
-    for k, side in _bridge_sides(g):
-        if k == first:
-            continue
-        near = side if ends <= side else set(range(g.n_vertices)) - side
-        candidates.append((_bonds_inside(g, near), k, near))
+    first, sides = first_bridge(vg, order), dict(_bridge_sides(g))
+    candidates = [(_bonds_inside(g, near), k, near) for k, near in
+                  ((k, _side_with(g, sides, k, first)) for k in sides if k != first)]
     if not candidates:
         raise ValueError(f"graph {vg.key} has fewer than two bridges")
     _, second, near = min(candidates, key=lambda item: item[:2])
-    a, c, colour = g.edges[second]
-    near_root, far_root = (a, c) if a in near else (c, a)
-    far = set(range(g.n_vertices)) - near
-    return (_rooted_part(vg, near, near_root), _rooted_part(vg, near, near_root, doubled=first),
-            _rooted_part(vg, far, far_root), vg.edge_values[colour][1])
+    (near_part, far_part), (doubled, _) = _split_across(vg, second, near), _split_across(vg, second, near, (first, 2))
+    return near_part, doubled, far_part, _jz(vg, second)
+
+
+class ExcessTwoParts(NamedTuple):
+    """The rooted parts of point 7 (module docstring) for the bridges b1, b2, b3 (b3 between b1 and b2)."""
+
+    near: tuple[ValuedGraph, ValuedGraph, ValuedGraph]  # A2 rooted at b2's end in it, b1's couplings times 1, 2, 3
+    far: ValuedGraph  # B2 rooted at b2's other end
+    jz_second: Fraction  # Jz_b2
+    first_side: tuple[ValuedGraph, ValuedGraph]  # A3 rooted at b3's end in it, b1's couplings times 1, 2
+    second_side: tuple[ValuedGraph, ValuedGraph]  # B3 rooted at b3's other end, b2's couplings times 1, 2
+    jz_third: Fraction  # Jz_b3
+
+    def rooted_graphs(self) -> list[ValuedGraph]:
+        return [*self.near, self.far, *self.first_side, *self.second_side]
+
+
+def excess_two_bridges(vg: ValuedGraph) -> tuple[int, int, int]:
+    """Bond numbers (b1, b2, b3) of three bridges with b3 between b1 and b2, for point 7 (module docstring).
+
+    The parts with a scaled bond (A2 with b1 times 2 and 3, A3 with b1 doubled, B3 with b2 doubled) are the new
+    graphs this needs, with their rooted subgraphs through the scaled bond, whose number grows about as 2^bonds;
+    so the triple with the least 2 * 2^E_A2 + 2^E_A3 + 2^E_B3 is taken, the first by bond numbers among equals.
+    """
+    g = vg.graph
+    sides = _bridge_sides(g)
+    inside = {k: _bonds_inside(g, side) for k, side in sides}  # bonds on the side of each bridge's first end
+    first_end_side = dict(sides)
+
+    def bonds_towards(bridge, other):  # bonds on the side of `bridge` that contains the bond `other`
+        toward_first = g.edges[other][0] in first_end_side[bridge]
+        return inside[bridge] if toward_first else g.n_edges - 1 - inside[bridge]
+
+    candidates = []
+    for third, near, far in _separations(g):
+        for ones, others in ((near, far), (far, near)):
+            for first in ones:
+                a3 = bonds_towards(third, first)
+                for second in others:
+                    cost = 2 * 2 ** bonds_towards(second, first) + 2 ** a3 + 2 ** (g.n_edges - 1 - a3)
+                    candidates.append((cost, first, second, third))
+    if not candidates:
+        raise ValueError(f"graph {vg.key} has no bridge between two others")
+    return min(candidates)[1:]
+
+
+def split_for_excess_two(vg: ValuedGraph, order: int) -> ExcessTwoParts:
+    """The rooted parts for the terms of degree >= 2 in b1 at beta^order of a graph of order - 2 bonds (module
+    docstring, point 7), with the bridges of :func:`excess_two_bridges` (its b1 is :func:`first_bridge`'s)."""
+    if vg.graph.n_edges != order - 2:
+        raise ValueError(f"graph {vg.key} has {vg.graph.n_edges} bonds, not order - 2 = {order - 2}")
+    g = vg.graph
+    first, second, third = excess_two_bridges(vg)
+    sides = dict(_bridge_sides(g))
+    side_two, side_three = _side_with(g, sides, second, first), _side_with(g, sides, third, first)
+    near_plain, far = _split_across(vg, second, side_two)
+    near = (near_plain, *(_split_across(vg, second, side_two, (first, factor))[0] for factor in (2, 3)))
+    first_side, second_side = _split_across(vg, third, side_three)
+    first_doubled = _split_across(vg, third, side_three, (first, 2))[0]
+    second_doubled = _split_across(vg, third, set(range(g.n_vertices)) - side_three, (second, 2))[0]
+    return ExcessTwoParts(near, far, _jz(vg, second), (first_side, first_doubled), (second_side, second_doubled),
+                          _jz(vg, third))
 
 
 def rooted_subgraph_certificates(graph: ColouredGraph, root: int) -> list[tuple[tuple, int]]:
@@ -226,6 +339,7 @@ class RootedWeights:
         self._unrooted: dict[str, ValuedGraph] = {}
         self._halves: dict[str, tuple] = {}
         self._second_order: dict[str, tuple] = {}
+        self._excess_two: dict[str, ExcessTwoParts] = {}
         self._palettes: dict[tuple, int] = {}  # (vertex values, edge values) -> a small number
         self._valued_subgraph: dict[tuple, ValuedGraph] = {}  # (palettes number, certificate) -> valued subgraph
 
@@ -266,20 +380,28 @@ class RootedWeights:
     def halves(self, vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, Fraction]:
         """:func:`split_at_best_bridge` of `vg`, remembered."""
         if vg.key not in self._halves:
-            self._halves[vg.key] = split_at_best_bridge(vg)
+            self._halves[vg.key] = split_at_best_bridge(vg, self.order)
         return self._halves[vg.key]
 
     def second_order_parts(self, vg: ValuedGraph) -> tuple[ValuedGraph, ValuedGraph, ValuedGraph, Fraction]:
         """:func:`split_for_second_order` of `vg`, remembered."""
         if vg.key not in self._second_order:
-            self._second_order[vg.key] = split_for_second_order(vg)
+            self._second_order[vg.key] = split_for_second_order(vg, self.order)
         return self._second_order[vg.key]
+
+    def excess_two_parts(self, vg: ValuedGraph) -> ExcessTwoParts:
+        """:func:`split_for_excess_two` of `vg`, remembered."""
+        if vg.key not in self._excess_two:
+            self._excess_two[vg.key] = split_for_excess_two(vg, self.order)
+        return self._excess_two[vg.key]
 
     def needed_for(self, vg: ValuedGraph) -> list[ValuedGraph]:
         """The (unrooted) valued graphs whose rooted series the factorised weight of `vg` uses."""
         parts = list(self.halves(vg)[:2])
         if vg.graph.n_edges < self.order:
             parts += self.second_order_parts(vg)[:3]
+        if vg.graph.n_edges < self.order - 1:
+            parts += self.excess_two_parts(vg).rooted_graphs()
         return [graph for part in parts for graph in self.needed_graphs(part)]
 
     def needed_graphs(self, rvg: ValuedGraph) -> list[ValuedGraph]:
@@ -329,31 +451,55 @@ class RootedWeights:
         return self.coefficient(rvg, rvg.graph.n_edges)
 
 
+def _across(weight: dict, n: int, jz: Fraction, left: tuple, right: tuple) -> None:
+    """Add the product across a bridge with Jz = `jz` at beta^n: -2 jz L_1 R_1 to m2, -4 jz (L_1 R_3 + L_3 R_1) to
+    m4, for factors left = (L_1, L_3) and right = (R_1, R_3) (module docstring, point 3)."""
+    weight["m2"][n] += -2 * jz * left[0] * right[0]
+    weight["m4"][n] += -4 * jz * (left[0] * right[1] + left[1] * right[0])
+
+
+def _quadratic(rooted: RootedWeights, plain: ValuedGraph, doubled: ValuedGraph, n: int) -> tuple:
+    """(Q_1, Q_3) at beta^n, the part quadratic in a bond's couplings of U(t) = c1 t + c2 t^2 (t = the bond's
+    scale): (U(2) - 2 U(1)) / 2 from the rooted graph without and with that bond doubled."""
+    return tuple((d - 2 * p) / 2 for p, d in zip(rooted.coefficient(plain, n), rooted.coefficient(doubled, n)))
+
+
+def _beyond_linear(rooted: RootedWeights, scaled: tuple, n: int) -> tuple:
+    """(R_1, R_3) at beta^n, the part of degree 2 and 3 in a bond's couplings of U(t) = c1 t + c2 t^2 + c3 t^3:
+    U(1) - c1 = -2 U(1) + 3 U(2) / 2 - U(3) / 3 from the rooted graph with that bond times 1, 2, 3."""
+    one, two, three = (rooted.coefficient(r, n) for r in scaled)
+    return tuple(-2 * a + Fraction(3, 2) * b - Fraction(1, 3) * c for a, b, c in zip(one, two, three))
+
+
 def factorised_weight(vg: ValuedGraph, order: int, rooted: RootedWeights) -> dict:
     """Linked weight {lnz, m2, m4} (coefficients of beta^0..beta^order) of a graph that :func:`factorisable`
-    accepts, from rooted linked weights of its parts (module docstring, points 5 and 6); `rooted` must hold the
+    accepts, from rooted linked weights of its parts (module docstring, points 5, 6 and 7); `rooted` must hold the
     rooted series of the graphs that :meth:`RootedWeights.needed_for` names."""
     if not factorisable(vg.graph, order):
         raise ValueError(f"the weight of {vg.key} to beta^{order} does not factorise: it needs {order} bonds and a "
-                         f"bridge or {order - 1} bonds and two bridges")
+                         f"bridge, {order - 1} bonds and two bridges, or {order - 2} bonds and a bridge between two "
+                         "others")
     n_bonds = vg.graph.n_edges
     half_a, half_b, jz = rooted.halves(vg)
     ea, eb = half_a.graph.n_edges, half_b.graph.n_edges
     weight = {q: [Fraction(0)] * (order + 1) for q in QUANTITIES}
-    # J_b-linear part across the bridge b: -2 beta Jz_b U_1^A U_1^B (m2), -4 beta Jz_b (U_1^A U_3^B + U_3^A U_1^B)
+    # J_b1-linear part across the first bridge b1 (points 3-5)
     for n in range(n_bonds, order + 1):
         for i in range(ea, n - eb):  # i + j = n - 1 with i >= E_A, j >= E_B
-            first_a, third_a = rooted.coefficient(half_a, i)
-            first_b, third_b = rooted.coefficient(half_b, n - 1 - i)
-            weight["m2"][n] += -2 * jz * first_a * first_b
-            weight["m4"][n] += -4 * jz * (first_a * third_b + third_a * first_b)
+            _across(weight, n, jz, rooted.coefficient(half_a, i), rooted.coefficient(half_b, n - 1 - i))
     if n_bonds < order:
-        # J_b1^2 part at beta^order, linear in the second bridge b2
+        # J_b1^2 part at beta^(E + 1), linear in the second bridge (point 6)
         near, near_doubled, far, jz2 = rooted.second_order_parts(vg)
         e = near.graph.n_edges
-        (first_1, third_1), (first_2, third_2) = rooted.coefficient(near, e + 1), rooted.coefficient(near_doubled, e + 1)
-        square_first, square_third = (first_2 - 2 * first_1) / 2, (third_2 - 2 * third_1) / 2
-        first_far, third_far = rooted.top(far)
-        weight["m2"][order] += -2 * jz2 * square_first * first_far
-        weight["m4"][order] += -4 * jz2 * (square_first * third_far + square_third * first_far)
+        _across(weight, n_bonds + 1, jz2, _quadratic(rooted, near, near_doubled, e + 1), rooted.top(far))
+    if n_bonds < order - 1:
+        # degree >= 2 in b1 at beta^order: linear in b2, or quadratic in b1 and b2 and linear in b3 (point 7)
+        parts = rooted.excess_two_parts(vg)
+        e, f = parts.near[0].graph.n_edges, parts.far.graph.n_edges
+        _across(weight, order, parts.jz_second, _quadratic(rooted, *parts.near[:2], e + 1),
+                rooted.coefficient(parts.far, f + 1))
+        _across(weight, order, parts.jz_second, _beyond_linear(rooted, parts.near, e + 2), rooted.top(parts.far))
+        e, f = parts.first_side[0].graph.n_edges, parts.second_side[0].graph.n_edges
+        _across(weight, order, parts.jz_third, _quadratic(rooted, *parts.first_side, e + 1),
+                _quadratic(rooted, *parts.second_side, f + 1))
     return weight

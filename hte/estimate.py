@@ -5,12 +5,12 @@ up to the size where that takes about a second, then extrapolated with the last 
 the enumeration time uses the measured time per cluster; the kernel time of a cluster is a measured overhead
 plus a measured unit times the square of its largest S^z sector (:func:`kernel_cost_model`); the memory is
 the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
-blocks) per worker.  Clusters that the run never diagonalises are left out of both: at the top order, trees
-(every bond a bridge) and one bond below it trees of two bonds or more get their T chi and M4 weights from the
-bridge factorisation (hte.bridge_factorisation),
-and with ln Z only a tree of E bonds first contributes at beta^(2E) (every bridge appears twice), so the
-largest diagonalised cluster has `order` sites rather than order + 1.  Expect the time to be right within a factor of a few; the memory bound is the one that matters for
-refusing a run.
+blocks) per worker.  Clusters that the run never diagonalises are left out of both: trees (every bond a
+bridge) of `order` bonds, of order - 1 >= 2 bonds and of order - 2 >= 3 bonds get their T chi and M4 weights
+from the bridge factorisation (hte.bridge_factorisation; :func:`diagonalised` says where this errs), and with
+ln Z only a tree of E bonds first contributes at beta^(2E) (every bridge appears twice), so the largest
+diagonalised cluster has `order` sites rather than order + 1.  Expect the time to be right within a factor of a
+few; the memory bound is the one that matters for refusing a run.
 """
 
 from __future__ import annotations
@@ -86,15 +86,19 @@ def available_memory() -> int:
 def diagonalised(n_bonds: int, n_sites: int, order: int, lnz_only: bool) -> bool:
     """Whether a run to `order` diagonalises a graph class of n_bonds bonds on n_sites sites.
 
-    Trees (n_sites = n_bonds + 1) are skipped at the top order and, with two bonds or more, one bond below it
-    (bridge factorisation), and, for ln Z alone, whenever 2 n_bonds > order.  Other graphs with bridges are
-    skipped too by the run but counted here, so the estimate errs on the expensive side.
+    Trees (n_sites = n_bonds + 1) are skipped at the top order, one bond below it with two bonds or more, and
+    two bonds below it with three bonds or more (bridge factorisation), and, for ln Z alone, whenever
+    2 n_bonds > order.  Two bonds below the top order the run still diagonalises the stars (no bond of a star
+    separates two others), which are skipped here: an error on the cheap side, and a small one, since a star of
+    order - 2 bonds exists only where order - 2 is at most the lattice's coordination number.  Graphs with
+    cycles and bridges that the run skips are counted here: an error on the expensive side.
     """
     if n_sites != n_bonds + 1:
         return True
     if lnz_only:
         return 2 * n_bonds <= order
-    return n_bonds < order - 1 or (n_bonds == order - 1 and n_bonds < 2)
+    below_top = order - n_bonds  # the factorisation reaches 0, 1 or 2 bonds below with that many bridges + 1
+    return below_top > 2 or n_bonds < below_top + 1
 
 
 def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = False) -> RunEstimate:

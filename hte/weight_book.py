@@ -7,9 +7,10 @@ linked weight is found by subgraph subtraction,
 
     W(G) = P(G) - sum_{g connected, proper} c(g, G) W(g) - sum_{v in G} W(v),
 
-done in integers over common denominators.  A graph with E = order bonds and a bridge is not diagonalised: its
-weight is beta^order times a product of rooted weights of its two halves (:mod:`hte.bridge_factorisation`), and
-the smaller graphs' series come with their rooted series (:mod:`hte.rooted_series`).
+done in integers over common denominators.  A graph with enough bridges near the top order (E = order bonds and
+a bridge, order - 1 and two, order - 2 and a bridge between two others) is not diagonalised: its weight comes
+from rooted weights of its parts across bridges (:mod:`hte.bridge_factorisation`), and the smaller graphs'
+series come with their rooted series (:mod:`hte.rooted_series`).
 
 Cache rows (:mod:`hte.cache`): key "raw-v1|order=N|<valued key>" holds the JSON {"lnz": [...], "m2": [...],
 "m4": [...]} of P(G) with Fractions as strings; "rooted-v1|order=N|<valued key>" holds {"u1": [[...] per site],
@@ -121,10 +122,14 @@ class WeightBook:
         return self.lnz_only and vg.graph.n_edges + count_bridges(vg.graph) > self.order
 
     def factorised(self, vg: ValuedGraph) -> bool:
-        """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge, or
-        order - 1 bonds and two bridges; :func:`hte.bridge_factorisation.factorisable`)."""
+        """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge, order - 1
+        bonds and two bridges, or order - 2 bonds and a bridge between two others;
+        :func:`hte.bridge_factorisation.factorisable`), decided at the first call: not when a factorised graph
+        seen before already uses its rooted series, as it is diagonalised then anyway and its weight follows by
+        subtraction (:meth:`ensure_raw` asks the larger graphs first)."""
         if vg.key not in self._factorisable:
-            self._factorisable[vg.key] = self.factorise and factorisable(vg.graph, self.order)
+            self._factorisable[vg.key] = (self.factorise and vg.key not in self.rooted_wanted
+                                          and factorisable(vg.graph, self.order))
         return self._factorisable[vg.key]
 
     def _wants_rooted(self, vg: ValuedGraph) -> bool:
@@ -136,7 +141,7 @@ class WeightBook:
     def ensure_raw(self, graphs: list[ValuedGraph]) -> None:
         """Compute (or fetch from the cache) the raw series of all `graphs`, with the rooted series of those that
         the factorised graphs among them (or before them) use; commits as results arrive."""
-        for vg in graphs:
+        for vg in sorted(graphs, key=lambda vg: -vg.graph.n_edges):  # the parts of a graph have fewer bonds
             if self.factorised(vg):
                 self.rooted_wanted.update(sub.key for sub in self.rooted.needed_for(vg))
         todo = {}

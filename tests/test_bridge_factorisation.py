@@ -1,10 +1,11 @@
 """The bridge factorisation (hte.bridge_factorisation) against brute-force linked weights.
 
 Convention: H = sum_b [Jxy (SxSx + SySy) + Jz SzSz] + sum_i D_i (S^z_i)^2 - h M, k_B = g mu_B = 1.  For every
-graph class with E = order bonds and at least one bridge, and for every class with E = order - 1 bonds and at
-least two bridges, the factorised weight (no diagonalisation of the graph, rooted linked weights of its parts)
-must equal exactly the weight found by diagonalising the graph and all its subgraphs and subtracting
-(hte.weight_book.WeightBook without the factorisation): an independent route through the exact kernel.
+graph class with E = order bonds and at least one bridge, every class with E = order - 1 bonds and at least two
+bridges, and every class with E = order - 2 bonds and a bridge between two other bridges, the factorised weight
+(no diagonalisation of the graph, rooted linked weights of its parts) must equal exactly the weight found by
+diagonalising the graph and all its subgraphs and subtracting (hte.weight_book.WeightBook without the
+factorisation): an independent route through the exact kernel.
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from hte.bridge_factorisation import (
     factorisable,
     factorised_weight,
     split_at_best_bridge,
+    split_for_excess_two,
     split_for_second_order,
 )
 from hte.clusters import enumerate_clusters
@@ -50,7 +52,8 @@ def _add_rooted(rooted: RootedWeights, graphs, order: int) -> None:
 
 def _compare(name: str, order: int, spin=HALF, couplings=None, anisotropy=0) -> dict:
     """Assert factorised == brute-force weight for every factorisable class (top order with a bridge, one bond
-    below with two bridges); return how many were checked per bond count."""
+    below with two bridges, two bonds below with a bridge between two others), and that each of the three levels
+    had classes with nonzero m2 and m4 at beta^order; return how many were checked per bond count."""
     couplings = couplings or {"J1": (Fraction(1), Fraction(1))}
     graphs = _lattice_graphs(name, order, spin, couplings, anisotropy)
     brute = WeightBook(order, bridge_factorisation=False)
@@ -60,14 +63,15 @@ def _compare(name: str, order: int, spin=HALF, couplings=None, anisotropy=0) -> 
     chosen = [vg for vg in graphs if factorisable(vg.graph, order)]
     checked, nonzero = {}, {}
     for vg in chosen:
-        _add_rooted(rooted, rooted.needed_for(vg), order)  # halves with a doubled bond are not lattice clusters
+        _add_rooted(rooted, rooted.needed_for(vg), order)  # parts with a scaled bond are not lattice clusters
         factorised = factorised_weight(vg, order, rooted)
         reference = brute.weight(vg.key)
         assert {q: reference[q] for q in QUANTITIES} == factorised, vg.key
         e = vg.graph.n_edges
         checked[e] = checked.get(e, 0) + 1
         nonzero[e] = nonzero.get(e, 0) + (factorised["m2"][order] != 0 and factorised["m4"][order] != 0)
-    assert all(nonzero.values()), nonzero  # for each bond count, the comparison is not between zeros only
+    # every level was met, and for each the comparison is not between zeros only
+    assert set(checked) == {order, order - 1, order - 2} and all(nonzero.values()), (checked, nonzero)
     return checked
 
 
@@ -75,7 +79,7 @@ def _compare(name: str, order: int, spin=HALF, couplings=None, anisotropy=0) -> 
                                          ("triangular", 7)])
 def test_heisenberg_spin_half_lattices(name, order):
     checked = _compare(name, order)
-    assert checked[order] >= 1 and checked[order - 1] >= 1
+    assert checked[order] >= 1 and checked[order - 1] >= 1 and checked[order - 2] >= 1
 
 
 def test_spin_one_square():
@@ -117,7 +121,7 @@ def test_the_most_balanced_bridge_is_chosen():
     # A path of 5 bonds: the middle bridge leaves halves of 2 bonds each
     j = (Fraction(1), Fraction(1))
     path = make_valued(6, [(HALF, Fraction(0))] * 6, [(k, k + 1, j) for k in range(5)])
-    half_a, half_b, jz = split_at_best_bridge(path)
+    half_a, half_b, jz = split_at_best_bridge(path, 5)
     assert (half_a.graph.n_edges, half_b.graph.n_edges, jz) == (2, 2, 1)
 
 
@@ -126,20 +130,96 @@ def test_second_order_parts_of_a_path():
     # b1's side, (1, 2) comes first.  A' = path 2-3-4-5 rooted at 2, the same with bond (2, 3) doubled, B' = 0-1.
     j = (Fraction(1), Fraction(1))
     path = make_valued(6, [(HALF, Fraction(0))] * 6, [(k, k + 1, j) for k in range(5)])
-    near, doubled, far, jz = split_for_second_order(path)
+    near, doubled, far, jz = split_for_second_order(path, 6)
     assert (near.graph.n_edges, doubled.graph.n_edges, far.graph.n_edges, jz) == (3, 3, 1, 1)
     assert sorted(doubled.edge_values) == [j, (Fraction(2), Fraction(2))] and near.edge_values == (j,)
-    assert factorisable(path.graph, 6) and factorisable(path.graph, 5) and not factorisable(path.graph, 7)
+    assert all(factorisable(path.graph, order) for order in (5, 6, 7)) and not factorisable(path.graph, 8)
     # a triangle with one pendant bond has a single bridge: factorisable at the top order only
     tadpole = make_valued(4, [(HALF, Fraction(0))] * 4, [(0, 1, j), (1, 2, j), (2, 0, j), (2, 3, j)])
     assert factorisable(tadpole.graph, 4) and not factorisable(tadpole.graph, 5)
+
+
+def test_two_below_the_top_order_needs_a_bridge_between_two_others():
+    # Three bridges are not enough: in a star of three bonds, or a triangle with three pendant bonds, no bridge
+    # separates two others, so at E = order - 2 the graph is diagonalised; a path of three bonds, or a triangle
+    # with a pendant path of three bonds, has one (module docstring, point 7).
+    j = (Fraction(1), Fraction(1))
+    star = make_valued(4, [(HALF, Fraction(0))] * 4, [(0, 1, j), (0, 2, j), (0, 3, j)])
+    path = make_valued(4, [(HALF, Fraction(0))] * 4, [(0, 1, j), (1, 2, j), (2, 3, j)])
+    assert not factorisable(star.graph, 5) and factorisable(star.graph, 4) and factorisable(star.graph, 3)
+    assert factorisable(path.graph, 5) and not factorisable(path.graph, 6)
+    triangle = [(0, 1, j), (1, 2, j), (2, 0, j)]
+    spiky = make_valued(6, [(HALF, Fraction(0))] * 6, triangle + [(0, 3, j), (1, 4, j), (2, 5, j)])
+    tailed = make_valued(6, [(HALF, Fraction(0))] * 6, triangle + [(0, 3, j), (3, 4, j), (4, 5, j)])
+    assert not factorisable(spiky.graph, 8) and factorisable(spiky.graph, 7)
+    assert factorisable(tailed.graph, 8)
+    # the most balanced bridge of the path, the middle one, separates the other two, so b1 is an end bond there
+    assert [part.graph.n_edges for part in split_at_best_bridge(path, 5)[:2]] in ([0, 2], [2, 0])
+    assert [part.graph.n_edges for part in split_at_best_bridge(path, 4)[:2]] == [1, 1]
+
+
+def test_path_of_three_bonds_two_below_the_top_order_equals_brute_force():
+    # Spin 1 with single-ion anisotropy and three different XXZ bonds: beta^5 of the 3-bond path has degree 5 in
+    # the couplings and D, so all three parts of point 7 (and D in the linear ones) enter.
+    one = (Fraction(1), Fraction(3, 4))
+    path = make_valued(4, [one] * 4, [(0, 1, (Fraction(1), Fraction(1))), (1, 2, (Fraction(1, 2), Fraction(-3, 2))),
+                                      (2, 3, (Fraction(2), Fraction(1, 3)))])
+    rooted = RootedWeights(5)
+    _add_rooted(rooted, rooted.needed_for(path), 5)
+    brute = WeightBook(5, bridge_factorisation=False)
+    brute.ensure_weights([path])
+    factorised = factorised_weight(path, 5, rooted)
+    assert {q: brute.weight(path.key)[q] for q in QUANTITIES} == factorised
+    assert factorised["m2"][5] != 0 and factorised["m4"][5] != 0
+
+
+def test_random_graphs_with_mixed_spins_two_below_the_top_order():
+    # Random trees with up to one extra bond, spins 1/2 and 1 mixed, random D, Jxy (zero and negative too) and Jz:
+    # each factorisable graph of E = order - 2 bonds gets the brute-force weight.
+    import random
+
+    rng = random.Random(3)
+    checked = 0
+    while checked < 12:
+        n = rng.randint(4, 7)
+        bonds = {tuple(sorted((v, rng.randrange(v)))) for v in range(1, n)}
+        bonds.add(tuple(sorted(rng.sample(range(n), 2))))
+        spins = [(Fraction(rng.randint(1, 2), 2), Fraction(rng.randint(0, 1), rng.randint(1, 3))) for _ in range(n)]
+        couplings = [(Fraction(rng.randint(-2, 2)), Fraction(rng.randint(1, 3), rng.randint(1, 2))) for _ in bonds]
+        vg = make_valued(n, spins, [(u, v, j) for (u, v), j in zip(sorted(bonds), couplings)])
+        order = len(bonds) + 2
+        if order > 8 or not factorisable(vg.graph, order):
+            continue
+        rooted = RootedWeights(order)
+        _add_rooted(rooted, rooted.needed_for(vg), order)
+        brute = WeightBook(order, bridge_factorisation=False)
+        brute.ensure_weights([vg])
+        factorised = factorised_weight(vg, order, rooted)
+        assert {q: brute.weight(vg.key)[q] for q in QUANTITIES} == factorised, vg.key
+        assert factorised["m2"][order] != 0
+        checked += 1
+
+
+def test_excess_two_parts_of_a_path():
+    # Path of bonds 0..6, order 9: the cost 2 * 2^E_A2 + 2^E_A3 + 2^E_B3 of the triples (b1, b2, b3) is least,
+    # 2 * 8 + 4 + 16, for b3 = bond 2 and b2 = bond 3 with b1 = bond 0 or 1 (or their mirror images): A2 = bonds
+    # 0-2, B2 = bonds 4-6, A3 = bonds 0-1, B3 = bonds 3-6.
+    j = (Fraction(1), Fraction(1))
+    path = make_valued(8, [(HALF, Fraction(0))] * 8, [(k, k + 1, j) for k in range(7)])
+    parts = split_for_excess_two(path, 9)
+    assert [r.graph.n_edges for r in parts.rooted_graphs()] == [3, 3, 3, 3, 2, 2, 4, 4]
+    assert (parts.jz_second, parts.jz_third) == (1, 1)
+    for scaled, factor in ((parts.near[1], 2), (parts.near[2], 3), (parts.first_side[1], 2),
+                           (parts.second_side[1], 2)):
+        assert sorted(scaled.edge_values) == [j, (Fraction(factor), Fraction(factor))]
+    assert parts.near[0].edge_values == parts.first_side[0].edge_values == parts.second_side[0].edge_values == (j,)
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("name, order", [("square", 10), ("kagome", 10), ("triangular", 9), ("honeycomb", 11)])
 def test_heisenberg_spin_half_lattices_higher_orders(name, order):
     checked = _compare(name, order)
-    assert checked[order] >= 1 and checked[order - 1] >= 1
+    assert checked[order] >= 1 and checked[order - 1] >= 1 and checked[order - 2] >= 1
 
 
 # ------------------------------------------------------------------------------------------ integration

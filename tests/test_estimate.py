@@ -24,13 +24,18 @@ def test_largest_sector_is_the_central_multinomial_coefficient():
 
 def test_trees_at_the_top_order_are_not_diagonalised():
     # bridge factorisation: a tree of E = order bonds (E + 1 sites) is never diagonalised, nor one of
-    # order - 1 >= 2 bonds (two bridges) ...
+    # order - 1 >= 2 bonds (two bridges), nor one of order - 2 >= 3 bonds (taken as not a star) ...
     assert not diagonalised(n_bonds=8, n_sites=9, order=8, lnz_only=False)
     assert not diagonalised(n_bonds=7, n_sites=8, order=8, lnz_only=False)
-    # ... but two bonds below the top order it is, and so is a graph with a cycle, and the single bond at order 2
-    assert diagonalised(n_bonds=6, n_sites=7, order=8, lnz_only=False)
+    assert not diagonalised(n_bonds=6, n_sites=7, order=8, lnz_only=False)
+    assert not diagonalised(n_bonds=3, n_sites=4, order=5, lnz_only=False)
+    # ... but three bonds below the top order it is, and so is a graph with a cycle, the single bond at order 2
+    # and order 3, and the 2-bond path at order 4 (fewer bridges than the level needs)
+    assert diagonalised(n_bonds=5, n_sites=6, order=8, lnz_only=False)
     assert diagonalised(n_bonds=8, n_sites=8, order=8, lnz_only=False)
     assert diagonalised(n_bonds=1, n_sites=2, order=2, lnz_only=False)
+    assert diagonalised(n_bonds=1, n_sites=2, order=3, lnz_only=False)
+    assert diagonalised(n_bonds=2, n_sites=3, order=4, lnz_only=False)
     # ln Z alone: a tree of E bonds starts at beta^(2E)
     assert diagonalised(n_bonds=4, n_sites=5, order=8, lnz_only=True)
     assert not diagonalised(n_bonds=5, n_sites=6, order=8, lnz_only=True)
@@ -40,8 +45,8 @@ def test_the_largest_diagonalised_chain_cluster_sets_the_memory():
     spec = load_lattice("chain")
     model = build_model(spec)
     estimate = estimate_run(spec, model, 10)
-    # the 10-bond ring does not embed in the chain, the paths of 10 and 9 bonds are factorised, so the open 8-bond
-    # path would be the largest diagonalised cluster; the estimate keeps the bound of `order` sites
+    # the 10-bond ring does not embed in the chain, the paths of 10, 9 and 8 bonds are factorised, so the open
+    # 7-bond path would be the largest diagonalised cluster; the estimate keeps the bound of `order` sites
     assert estimate.largest_sector == comb(10, 5)
     assert estimate.clusters == 10 and estimate.graph_classes == 10   # one path per bond count per cell
     assert estimate.memory_bytes > 0 and estimate.seconds > 0
