@@ -89,7 +89,7 @@ from hte.canonical import certificate_to_graph
 from hte.enumeration import enumerate_bond_clusters
 from hte.exact import QUANTITIES
 from hte.graph import ColouredGraph, count_bridges
-from hte.valued_graph import ValuedGraph, make_valued, with_values_of
+from hte.valued_graph import SubgraphCatalogue, ValuedGraph, make_valued
 
 ROOT, OTHER = 1, 0  # third entry of a rooted vertex value (S, D, mark)
 
@@ -340,8 +340,7 @@ class RootedWeights:
         self._halves: dict[str, tuple] = {}
         self._second_order: dict[str, tuple] = {}
         self._excess_two: dict[str, ExcessTwoParts] = {}
-        self._palettes: dict[tuple, int] = {}  # (vertex values, edge values) -> a small number
-        self._valued_subgraph: dict[tuple, ValuedGraph] = {}  # (palettes number, certificate) -> valued subgraph
+        self._catalogue = SubgraphCatalogue()
 
     def add(self, vg: ValuedGraph, u1, u3) -> None:
         """Record the rooted series of every vertex of `vg` (``u1[v]``, ``u3[v]`` for vertex v of vg.graph)."""
@@ -359,16 +358,8 @@ class RootedWeights:
         """{rooted key: count} of the connected proper subgraphs of `rvg` with >= 1 bond that contain the root."""
         if rvg.key in self.subgraph_memo:
             return self.subgraph_memo[rvg.key]
-        result: dict[str, int] = {}
-        palettes = self._palettes.setdefault((rvg.vertex_values, rvg.edge_values), len(self._palettes))
-        for cert, count in rooted_subgraph_certificates(rvg.graph, _root_of(rvg)):
-            memo_key = (palettes, cert)
-            sub = self._valued_subgraph.get(memo_key)
-            if sub is None:
-                sub = with_values_of(rvg, certificate_to_graph(cert))
-                self._valued_subgraph[memo_key] = sub
-                self.valued.setdefault(sub.key, sub)
-            result[sub.key] = result.get(sub.key, 0) + count
+        result = self._catalogue.count(rvg, rooted_subgraph_certificates(rvg.graph, _root_of(rvg)),
+                                       certificate_to_graph, lambda sub: self.valued.setdefault(sub.key, sub))
         self.subgraph_memo[rvg.key] = result
         return result
 

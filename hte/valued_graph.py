@@ -46,6 +46,32 @@ def with_values_of(vg: ValuedGraph, graph: ColouredGraph) -> ValuedGraph:
                        [(u, v, vg.edge_values[c]) for u, v, c in graph.edges])
 
 
+class SubgraphCatalogue:
+    """Valued subgraphs met inside valued graphs, each built once.
+
+    A subgraph is found by a local form (a canonical key or certificate whose colours index the parent's value
+    palettes); its own canonical ValuedGraph is built once per (parent palettes, local form).
+    """
+
+    def __init__(self):
+        self._palettes: dict[tuple, int] = {}  # (vertex values, edge values) -> a small number
+        self._built: dict[tuple, ValuedGraph] = {}  # (palettes number, local form) -> valued subgraph
+
+    def count(self, vg: ValuedGraph, local_counts, to_graph, register) -> dict[str, int]:
+        """{valued key: count} of the subgraphs of `vg` given as (local form, count) pairs; `to_graph` turns a
+        local form into a ColouredGraph, `register(subgraph)` is called for every subgraph built anew."""
+        palettes = self._palettes.setdefault((vg.vertex_values, vg.edge_values), len(self._palettes))
+        result: dict[str, int] = {}
+        for local, count in local_counts:
+            sub = self._built.get((palettes, local))
+            if sub is None:
+                sub = with_values_of(vg, to_graph(local))
+                self._built[(palettes, local)] = sub
+                register(sub)
+            result[sub.key] = result.get(sub.key, 0) + count
+        return result
+
+
 def cert_text(graph: ColouredGraph) -> str:
     """The text "n|vertex colours|edges" of a (canonically labelled) coloured graph, as used in valued keys."""
     colours = ".".join(str(c) for c in graph.vertex_colours)

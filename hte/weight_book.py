@@ -32,7 +32,7 @@ from hte.exact import QUANTITIES, cluster_cumulants
 from hte.executors import run_jobs
 from hte.graph import count_bridges
 from hte.rooted_series import rooted_cluster_series
-from hte.valued_graph import ValuedGraph, hamiltonian_of, site_graph, with_values_of
+from hte.valued_graph import SubgraphCatalogue, ValuedGraph, hamiltonian_of, site_graph
 
 CACHE_FORMAT = "raw-v1"
 ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
@@ -105,7 +105,7 @@ class WeightBook:
         # integer combination of raw series.  _numerators holds those integers.
         self.denominators = {q: [1] * (order + 1) for q in QUANTITIES}
         self._numerators: dict[str, dict] = {}
-        self._valued_subgraph: dict[tuple, ValuedGraph] = {}
+        self._catalogue = SubgraphCatalogue()
         self._site_key: dict[tuple, str] = {}
         self._factorisable: dict[str, bool] = {}
         self._factorised_weights: dict[str, dict] = {}  # key -> weight (Fractions) of the factorised graphs
@@ -289,15 +289,8 @@ class WeightBook:
         """Connected proper subgraphs with at least one edge: valued key -> number of embeddings in `vg`."""
         if vg.key in self.subgraph_memo:
             return self.subgraph_memo[vg.key]
-        result = {}
-        for local_key, count in subgraph_counts(vg.graph).items():
-            memo = (local_key, vg.vertex_values, vg.edge_values)  # local colours index vg's value palettes
-            sub = self._valued_subgraph.get(memo)
-            if sub is None:
-                sub = with_values_of(vg, key_to_graph(local_key))
-                self._valued_subgraph[memo] = sub
-                self.valued.setdefault(sub.key, sub)
-            result[sub.key] = result.get(sub.key, 0) + count
+        result = self._catalogue.count(vg, subgraph_counts(vg.graph).items(), key_to_graph,
+                                       lambda sub: self.valued.setdefault(sub.key, sub))
         self.subgraph_memo[vg.key] = result
         return result
 
