@@ -196,14 +196,16 @@ def _side_with(graph: ColouredGraph, sides: dict, bridge: int, other: int) -> se
     return side if graph.edges[other][0] in side else set(range(graph.n_vertices)) - side
 
 
-def _split_across(vg: ValuedGraph, bridge: int, near: set,
-                  scaled: tuple[int, int] | None = None) -> tuple[ValuedGraph, ValuedGraph]:
-    """The side `near` of `bridge` rooted at the bridge's end in it (with `scaled` as in :func:`_rooted_part`),
-    and the other side rooted at the other end."""
+def _near_side(vg: ValuedGraph, bridge: int, near: set, scaled: tuple[int, int] | None = None) -> ValuedGraph:
+    """The side `near` of `bridge` rooted at the bridge's end in it (with `scaled` as in :func:`_rooted_part`)."""
     a, c, _ = vg.graph.edges[bridge]
-    near_root, far_root = (a, c) if a in near else (c, a)
+    return _rooted_part(vg, near, a if a in near else c, scaled)
+
+
+def _split_across(vg: ValuedGraph, bridge: int, near: set) -> tuple[ValuedGraph, ValuedGraph]:
+    """The side `near` of `bridge` and the other side, each rooted at the bridge's end in it."""
     far = set(range(vg.graph.n_vertices)) - near
-    return _rooted_part(vg, near, near_root, scaled), _rooted_part(vg, far, far_root)
+    return _near_side(vg, bridge, near), _near_side(vg, bridge, far)
 
 
 def _jz(vg: ValuedGraph, bond: int) -> Fraction:
@@ -228,8 +230,8 @@ def split_for_second_order(vg: ValuedGraph, order: int) -> tuple[ValuedGraph, Va
     if not candidates:
         raise ValueError(f"graph {vg.key} has fewer than two bridges")
     _, second, near = min(candidates, key=lambda item: item[:2])
-    (near_part, far_part), (doubled, _) = _split_across(vg, second, near), _split_across(vg, second, near, (first, 2))
-    return near_part, doubled, far_part, _jz(vg, second)
+    near_part, far_part = _split_across(vg, second, near)
+    return near_part, _near_side(vg, second, near, (first, 2)), far_part, _jz(vg, second)
 
 
 class ExcessTwoParts(NamedTuple):
@@ -285,10 +287,10 @@ def split_for_excess_two(vg: ValuedGraph, order: int) -> ExcessTwoParts:
     sides = dict(_bridge_sides(g))
     side_two, side_three = _side_with(g, sides, second, first), _side_with(g, sides, third, first)
     near_plain, far = _split_across(vg, second, side_two)
-    near = (near_plain, *(_split_across(vg, second, side_two, (first, factor))[0] for factor in (2, 3)))
+    near = (near_plain, *(_near_side(vg, second, side_two, (first, factor)) for factor in (2, 3)))
     first_side, second_side = _split_across(vg, third, side_three)
-    first_doubled = _split_across(vg, third, side_three, (first, 2))[0]
-    second_doubled = _split_across(vg, third, set(range(g.n_vertices)) - side_three, (second, 2))[0]
+    first_doubled = _near_side(vg, third, side_three, (first, 2))
+    second_doubled = _near_side(vg, third, set(range(g.n_vertices)) - side_three, (second, 2))
     return ExcessTwoParts(near, far, _jz(vg, second), (first_side, first_doubled), (second_side, second_doubled),
                           _jz(vg, third))
 
