@@ -316,7 +316,8 @@ def rooted_subgraph_certificates(graph: ColouredGraph, root: int) -> list[tuple[
     np.add.at(pointer, ends + 1, 1)
     certs, lengths, counts, _ = enumerate_bond_clusters(
         m - 1, np.arange(n_first, dtype=np.int64), array[:, 0].copy(), array[:, 1].copy(), array[:, 2].copy(),
-        np.asarray(graph.vertex_colours, np.int64), np.cumsum(pointer), ids[order], graph.n_vertices)
+        np.asarray(graph.vertex_colours, np.int64), np.cumsum(pointer), ids[order], graph.n_vertices,
+        False)
     return [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
 
 

@@ -80,6 +80,7 @@ class ClusterCensus:
     classes: list[GraphClass]
     clusters_per_cell: list[int]  # index n = number of clusters with n bonds (index 0 unused, 0)
     seconds: float = 0.0  # wall time of the whole census
+    biconnected_only: bool = False  # only the biconnected clusters (star graphs) were kept
 
     def per_site(self, count: int) -> Fraction:
         """Convert a per-cell count to a per-site lattice constant (exact)."""
@@ -169,15 +170,15 @@ def _site_neighbours(box: _Box):
 
 # ---------------------------------------------------------------------------------------------- census
 def _census_worker(args):
-    box, roots, max_bonds = args
+    box, roots, max_bonds, biconnected_only = args
     certs, lengths, counts, per_size = enumerate_bond_clusters(
         max_bonds, roots, box.bond_u, box.bond_v, box.bond_col, box.site_col, box.inc_ptr, box.inc_bond,
-        box.n_sites)
+        box.n_sites, biconnected_only)
     classes = [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
     return classes, per_size.tolist()
 
 
-def _roots_by_work(box: _Box, max_bonds: int) -> list[np.ndarray]:
+def _roots_by_work(box: _Box, max_bonds: int, biconnected_only: bool) -> list[np.ndarray]:
     """The root bonds one by one, the most laborious first, for a pool that hands out jobs as workers free up.
 
     The work of a root is estimated by its number of clusters three bonds smaller, a small fraction of the
@@ -187,13 +188,14 @@ def _roots_by_work(box: _Box, max_bonds: int) -> list[np.ndarray]:
     pilot = max(1, max_bonds - 3)
     work = []
     for root in box.root_bonds:
-        _, per_size = _census_worker((box, np.array([root]), pilot))
+        _, per_size = _census_worker((box, np.array([root]), pilot, biconnected_only))
         work.append(sum(per_size))
     order = sorted(range(box.root_bonds.size), key=lambda k: -work[k])
     return [box.root_bonds[k : k + 1] for k in order]
 
 
-def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, progress=None) -> ClusterCensus:
+def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, progress=None,
+                       biconnected_only: bool = False) -> ClusterCensus:
     """Classify all connected bond clusters of `spec` with 1..max_bonds bonds, counted per unit cell.
 
     Parameters
@@ -207,6 +209,9 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
         one job; the jobs go out the most laborious first, to whichever worker is free.
     progress : callable, optional
         Called as progress(message) each time the clusters of one root bond are done.
+    biconnected_only : bool
+        Keep only the biconnected clusters (single bonds and clusters without a cut vertex); the search then
+        skips the clusters that cannot grow into one (:func:`hte.enumeration.enumerate_bond_clusters`).
     """
     from hte.errors import ParameterError
 
@@ -226,12 +231,12 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
             progress(f"root bonds done: {len(results)}/{len(jobs)}, {elapsed:.0f} s elapsed")
 
     if workers <= 1 or box.root_bonds.size == 1:
-        jobs = [(box, np.array([root], np.int64), max_bonds) for root in box.root_bonds]
+        jobs = [(box, np.array([root], np.int64), max_bonds, biconnected_only) for root in box.root_bonds]
         for job in jobs:
             results.append(_census_worker(job))
             report()
     else:
-        jobs = [(box, roots, max_bonds) for roots in _roots_by_work(box, max_bonds)]
+        jobs = [(box, roots, max_bonds, biconnected_only) for roots in _roots_by_work(box, max_bonds, biconnected_only)]
         with ProcessPoolExecutor(max_workers=min(workers, len(jobs))) as pool:
             for result in as_completed([pool.submit(_census_worker, job) for job in jobs]):
                 results.append(result.result())
@@ -244,7 +249,7 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
     graph_classes.sort(key=lambda g: (g.n_bonds, g.n_sites, g.key))
     elapsed = time.perf_counter() - start
     return ClusterCensus(spec.name, max_bonds, spec.n_sites, tuple(spec.site_classes), tuple(spec.labels),
-                         graph_classes, [int(x) for x in per_size], elapsed)
+                         graph_classes, [int(x) for x in per_size], elapsed, biconnected_only)
 
 
 def count_site_animals(spec: LatticeSpec, max_sites: int) -> list[int]:
@@ -255,8 +260,8 @@ def count_site_animals(spec: LatticeSpec, max_sites: int) -> list[int]:
 
 
 # ---------------------------------------------------------------------------------------------- subgraphs
-def subgraph_counts(graph: ColouredGraph) -> dict[str, int]:
-    """Embedding counts of the connected proper subgraphs of `graph`.
+def subgraph_counts(graph: ColouredGraph, biconnected_only: bool = False) -> dict[str, int]:
+    """Embedding counts of the connected proper subgraphs of `graph` (only the biconnected ones if asked).
 
     Returns a map canonical key -> number of connected edge subsets of `graph` (at least one edge, not all
     of them) isomorphic to that class.  Single sites are not included; they are counted by colour with
@@ -274,7 +279,7 @@ def subgraph_counts(graph: ColouredGraph) -> dict[str, int]:
     np.add.at(ptr, ends + 1, 1)
     certs, lengths, counts, _ = enumerate_bond_clusters(
         m - 1, np.arange(m, dtype=np.int64), edges[:, 0].copy(), edges[:, 1].copy(), edges[:, 2].copy(),
-        np.asarray(graph.vertex_colours, np.int64), np.cumsum(ptr), ids[order], n)
+        np.asarray(graph.vertex_colours, np.int64), np.cumsum(ptr), ids[order], n, biconnected_only)
     return {certificate_key(certs[i, : lengths[i]]): int(counts[i]) for i in range(counts.size)}
 
 

@@ -81,9 +81,58 @@ def _grown_rows(certs, lengths, counts, class_hash):
     return new_certs, new_lengths, new_counts, new_hash
 
 
+@njit(cache=True, inline="always")
+def _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec):
+    """The cluster's first `size` bonds as edges (eu < ev, colour ec) between local vertex numbers."""
+    for k in range(size):
+        c = cluster[k]
+        a = local[bond_u[c]]
+        z = local[bond_v[c]]
+        if a < z:
+            eu[k] = a
+            ev[k] = z
+        else:
+            eu[k] = z
+            ev[k] = a
+        ec[k] = bond_col[c]
+
+
 @njit(cache=True)
-def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites):
+def _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes):
+    """Count the cluster whose local edges are in the workspace into its graph class (added if new); returns the
+    class table, grown when full."""
+    for k in range(nv):
+        vcol[k] = site_col[verts[k]]
+    length = canonical_into(ws, nv, size)
+    h = _certificate_hash(best, length)
+    slot = _lookup(slots, class_hash, certs, lengths, best, length, h)
+    if slots[slot] >= 0:
+        counts[slots[slot]] += 1
+    else:
+        if n_classes == certs.shape[0]:
+            certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
+        certs[n_classes, :length] = best[:length]
+        lengths[n_classes] = length
+        counts[n_classes] = 1
+        class_hash[n_classes] = h
+        slots[slot] = n_classes
+        n_classes += 1
+        if 2 * n_classes > slots.shape[0]:
+            slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
+    return certs, lengths, counts, class_hash, slots, n_classes
+
+
+@njit(cache=True)
+def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
+                            biconnected_only=False):
     """Visit every connected bond cluster of <= max_bonds bonds whose smallest bond id is one of `roots`.
+
+    With ``biconnected_only`` only the biconnected clusters (a single bond, or no cut vertex) are classified and
+    counted, and the search skips every cluster that cannot grow into one within max_bonds bonds: one with a
+    degree-1 site ("leaf") none of whose other bonds is still available, or whose size plus a lower bound on
+    the bonds that its leaves still need exceeds max_bonds (:func:`_bonds_to_mend_leaves`).  Both rules only cut
+    branches without biconnected descendants, so the biconnected clusters counted are exactly those of the full
+    search.
 
     Returns
     -------
@@ -104,17 +153,20 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
         if d > max_deg:
             max_deg = d
     reached = np.zeros(n_bonds, np.bool_)
+    available = np.zeros(n_bonds, np.bool_)  # biconnected_only: in the untried list of the current level
     local = -np.ones(n_sites, np.int64)
-    refc = np.zeros(n_sites, np.int64)
+    refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
     cluster = np.empty(max_bonds + 1, np.int64)
     buf = np.empty((max_bonds + 2) * (2 * max_deg * (max_bonds + 1) + 2), np.int64)
+    seg_start = np.empty(max_bonds + 2, np.int64)
     seg_end = np.empty(max_bonds + 2, np.int64)
     seg_pos = np.empty(max_bonds + 2, np.int64)
     seg_new = np.empty(max_bonds + 2, np.int64)
     ws = new_workspace(max_bonds + 1, max_bonds)
     vcol, eu, ev, ec = workspace_inputs(ws)
     best, _ = workspace_result(ws)
+    scratch = np.empty((6, 2 * max_bonds + 3), np.int64)  # for _is_biconnected
 
     # the graph classes: an open-addressing hash table of class indices, kept at most half full
     n_vertices = max_bonds + 1
@@ -131,7 +183,9 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
         reached[root] = True
         nv = 0
         size = 0
+        leaves = 0
         buf[0] = root
+        seg_start[0] = 0
         seg_end[0] = 1
         seg_pos[0] = 0
         seg_new[0] = 1
@@ -140,6 +194,10 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
             if seg_pos[d] == seg_end[d]:
                 for k in range(seg_new[d], seg_end[d]):
                     reached[buf[k]] = False
+                    available[buf[k]] = False
+                if d > 0:
+                    for k in range(seg_start[d], seg_new[d]):
+                        available[buf[k]] = True  # still untried at the level below
                 d -= 1
                 if d >= 0:
                     # pop the bond chosen at level d
@@ -150,9 +208,13 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                         if refc[s] == 0:
                             local[s] = -1
                             nv -= 1
+                            leaves -= 1
+                        elif refc[s] == 1:
+                            leaves += 1
                 continue
             b = buf[seg_pos[d]]
             seg_pos[d] += 1
+            available[b] = False
             cluster[size] = b
             size += 1
             for s in (bond_u[b], bond_v[b]):
@@ -160,39 +222,54 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                     local[s] = nv
                     verts[nv] = s
                     nv += 1
+                    leaves += 1
+                elif refc[s] == 1:
+                    leaves -= 1
                 refc[s] += 1
-            # classify
-            for k in range(nv):
-                vcol[k] = site_col[verts[k]]
-            for k in range(size):
-                c = cluster[k]
-                a = local[bond_u[c]]
-                z = local[bond_v[c]]
-                if a < z:
-                    eu[k] = a
-                    ev[k] = z
-                else:
-                    eu[k] = z
-                    ev[k] = a
-                ec[k] = bond_col[c]
-            length = canonical_into(ws, nv, size)
-            h = _certificate_hash(best, length)
-            slot = _lookup(slots, class_hash, certs, lengths, best, length, h)
-            if slots[slot] >= 0:
-                counts[slots[slot]] += 1
-            else:
-                if n_classes == certs.shape[0]:
-                    certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
-                certs[n_classes, :length] = best[:length]
-                lengths[n_classes] = length
-                counts[n_classes] = 1
-                class_hash[n_classes] = h
-                slots[slot] = n_classes
-                n_classes += 1
-                if 2 * n_classes > slots.shape[0]:
-                    slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
-            per_size[size] += 1
-            if size < max_bonds:
+            record = True
+            grow = size < max_bonds
+            if biconnected_only:
+                if leaves > 0:
+                    record = size == 1
+                    if size < max_bonds - 1 and (size + (leaves + 1) // 2 > max_bonds or size + _bonds_to_mend_leaves(
+                            nv, verts, refc, bond_u, bond_v, inc_ptr, inc_bond, available, reached, root) > max_bonds):
+                        grow = False
+            if biconnected_only and grow and size == max_bonds - 1:
+                # the last bond must leave no leaf: it joins two sites of the cluster, every leaf one of them
+                grow = False
+                first = -1  # scan the bonds of the first leaf, or of every site when there is no leaf
+                second = -1
+                for k in range(nv if 0 < leaves <= 2 else 0):
+                    if refc[verts[k]] == 1:
+                        if first < 0:
+                            first = verts[k]
+                        else:
+                            second = verts[k]
+                for k in range(nv if leaves == 0 else (1 if leaves <= 2 else 0)):
+                    s = verts[k] if leaves == 0 else first
+                    for p in range(inc_ptr[s], inc_ptr[s + 1]):
+                        f = inc_bond[p]
+                        t = bond_v[f] if bond_u[f] == s else bond_u[f]
+                        if refc[t] == 0 or (leaves == 0 and bond_u[f] != s) or (leaves == 2 and t != second):
+                            continue
+                        if not (available[f] or (f > root and not reached[f])):
+                            continue
+                        cluster[size] = f
+                        _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                        if _is_biconnected(nv, size + 1, eu, ev, scratch):
+                            certs, lengths, counts, class_hash, slots, n_classes = _classify(
+                                ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
+                                slots, n_classes)
+                            per_size[size + 1] += 1
+            if record:
+                _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                if biconnected_only and size > 1:
+                    record = _is_biconnected(nv, size, eu, ev, scratch)
+            if record:
+                certs, lengths, counts, class_hash, slots, n_classes = _classify(
+                    ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes)
+                per_size[size] += 1
+            if grow:
                 ns = seg_end[d]
                 k = ns
                 for q in range(seg_pos[d], seg_end[d]):
@@ -204,9 +281,11 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                         f = inc_bond[p]
                         if f > root and not reached[f]:
                             reached[f] = True
+                            available[f] = True
                             buf[k] = f
                             k += 1
                 d += 1
+                seg_start[d] = ns
                 seg_end[d] = k
                 seg_pos[d] = ns
                 seg_new[d] = newstart
@@ -217,8 +296,105 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                     if refc[s] == 0:
                         local[s] = -1
                         nv -= 1
+                        leaves -= 1
+                    elif refc[s] == 1:
+                        leaves += 1
         reached[root] = False
     return certs[:n_classes], lengths[:n_classes], counts[:n_classes], per_size
+
+
+@njit(cache=True, inline="always")
+def _bonds_to_mend_leaves(nv, verts, refc, bond_u, bond_v, inc_ptr, inc_bond, available, reached, root):
+    """A lower bound on the bonds still needed before no site of the cluster has degree 1, or a huge number if
+    some such leaf can never get a second bond.
+
+    In a biconnected supercluster the bond at a leaf l lies on a cycle, so a path of new bonds leaves l and first
+    meets the cluster again at another site.  Its first bond is one the search may still add (in the untried
+    list, or not reached yet).  If that bond ends on the cluster it can serve two leaves at most; if it ends on
+    a new site it serves l alone.  So at least ceil(n1 / 2) + n2 bonds are missing, n1 counting the leaves with
+    an available bond into the cluster and n2 the others."""
+    n1 = 0
+    n2 = 0
+    for k in range(nv):
+        s = verts[k]
+        if refc[s] == 1:
+            alive = False
+            into_cluster = False
+            for p in range(inc_ptr[s], inc_ptr[s + 1]):
+                f = inc_bond[p]
+                if available[f] or (f > root and not reached[f]):
+                    alive = True
+                    other = bond_v[f] if bond_u[f] == s else bond_u[f]
+                    if refc[other] > 0:
+                        into_cluster = True
+                        break
+            if not alive:
+                return 1 << 30
+            if into_cluster:
+                n1 += 1
+            else:
+                n2 += 1
+    return (n1 + 1) // 2 + n2
+
+
+@njit(cache=True)
+def _is_biconnected(nv, ne, eu, ev, scratch):
+    """True if the connected graph on vertices 0..nv-1 with edges (eu[e], ev[e]), e < ne, has no cut vertex
+    (Tarjan's low-point depth-first search; parallel edges are told apart by their edge ids).  scratch is
+    int64[6, >= max(nv + 1, 2 ne)]."""
+    ptr, adj, disc, low, parent_edge, cursor = scratch[0], scratch[1], scratch[2], scratch[3], scratch[4], scratch[5]
+    for x in range(nv + 1):
+        ptr[x] = 0
+    for e in range(ne):
+        ptr[eu[e] + 1] += 1
+        ptr[ev[e] + 1] += 1
+    for x in range(nv):
+        ptr[x + 1] += ptr[x]
+    for x in range(nv):
+        cursor[x] = ptr[x]
+    for e in range(ne):
+        adj[cursor[eu[e]]] = e
+        cursor[eu[e]] += 1
+        adj[cursor[ev[e]]] = e
+        cursor[ev[e]] += 1
+    for x in range(nv):
+        disc[x] = -1
+        cursor[x] = ptr[x]
+    # the depth-first path is kept implicitly: parent_edge[x] leads back from x towards vertex 0
+    disc[0] = 0
+    low[0] = 0
+    parent_edge[0] = -1
+    clock = 1
+    root_children = 0
+    x = 0
+    while True:
+        if cursor[x] < ptr[x + 1]:
+            e = adj[cursor[x]]
+            cursor[x] += 1
+            if e == parent_edge[x]:
+                continue
+            y = ev[e] if eu[e] == x else eu[e]
+            if disc[y] < 0:
+                disc[y] = clock
+                low[y] = clock
+                clock += 1
+                parent_edge[y] = e
+                if x == 0:
+                    root_children += 1
+                x = y
+            elif disc[y] < low[x]:
+                low[x] = disc[y]
+        else:
+            if x == 0:
+                break
+            e = parent_edge[x]
+            p = ev[e] if eu[e] == x else eu[e]
+            if low[x] < low[p]:
+                low[p] = low[x]
+            if p != 0 and low[x] >= disc[p]:
+                return False
+            x = p
+    return root_children == 1 and clock == nv
 
 
 @njit(cache=True)

@@ -101,16 +101,18 @@ def diagonalised(n_bonds: int, n_sites: int, order: int, lnz_only: bool) -> bool
     return below_top > 2 or n_bonds < below_top + 1
 
 
-def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = False) -> RunEstimate:
+def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = False,
+                 biconnected_only: bool = False) -> RunEstimate:
     """Estimate time and memory of the series run of `model` on `spec` to `order` (see module docstring);
-    `lnz_only` for runs of ln Z alone."""
+    `lnz_only` for runs of ln Z alone, `biconnected_only` when only biconnected clusters are enumerated
+    (:func:`hte.expansion.star_graphs_suffice`)."""
     twice_spin = max(int(2 * s) for s in model.spin.values())
     counts, classes, seconds = [], [], []
     n = 0
     while n < order:
         n += 1
         start = time.perf_counter()
-        census = enumerate_clusters(spec, n)
+        census = enumerate_clusters(spec, n, biconnected_only=biconnected_only)
         seconds.append(time.perf_counter() - start)
         counts.append(sum(census.clusters_per_cell))
         classes.append(len(census.classes))
@@ -128,44 +130,55 @@ def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = Fal
         n_classes += last_classes
         enum_s += last_count * per_cluster
     # kernel: time real classes of the largest affordable size, scale by the square of the largest sector
-    kernel_s = _kernel_seconds(census, order, twice_spin, class_growth, lnz_only)
+    diagonal = all(c.xy == 0 for label, c in model.couplings.items() if label in spec.labels)
+    kernel_s = _kernel_seconds(census, order, twice_spin, class_growth, lnz_only, diagonal)
     top = largest_sector(order, twice_spin)
     memory = top * (order + 2) * 16 + _BLOCK_BYTES + top * 64
     return RunEstimate(order, int(total), int(n_classes), enum_s / max(workers, 1), kernel_s / max(workers, 1),
                        top, int(memory), n)
 
 
-def _path_seconds(n_sites: int, twice_spin: int, order: int) -> float:
-    """Wall time of the exact kernel on an open path of n_sites spins to `order`."""
+def _path_seconds(n_sites: int, twice_spin: int, order: int, diagonal: bool = False) -> float:
+    """Wall time of the exact kernel on an open path of n_sites spins to `order` (Heisenberg bonds, or Ising
+    bonds if `diagonal`)."""
     from hte.exact import ClusterHamiltonian, cluster_cumulants
 
     spin = Fraction(twice_spin, 2)
+    jxy = Fraction(0) if diagonal else Fraction(1)
     ham = ClusterHamiltonian(spins=(spin,) * n_sites,
-                             bonds=tuple((i, i + 1, Fraction(1), Fraction(1)) for i in range(n_sites - 1)))
+                             bonds=tuple((i, i + 1, jxy, Fraction(1)) for i in range(n_sites - 1)))
     start = time.perf_counter()
     cluster_cumulants(ham, order)
     return time.perf_counter() - start
 
 
-def kernel_cost_model(twice_spin: int, order: int) -> tuple[float, float]:
-    """(overhead s, s per squared sector state): kernel time of a cluster ~ overhead + unit * (largest sector)^2.
+def kernel_cost_model(twice_spin: int, order: int, diagonal: bool = False) -> tuple[float, float]:
+    """(overhead s, s per unit of size): kernel time of a cluster ~ overhead + unit * size, the size being the
+    square of its largest S^z sector, or its number of states when H0 is diagonal (every Jxy = 0: the kernel
+    then sums the diagonal directly, :mod:`hte.exact`).
 
     Both are measured at the run's order (the number of primes and of propagation steps grow with it): the
     overhead on a two-site cluster, the unit on the longest path whose largest sector has at most
     _PROBE_SECTOR states.
     """
-    _path_seconds(2, twice_spin, order)  # compile and warm up
-    overhead = _path_seconds(2, twice_spin, order)
+    _path_seconds(2, twice_spin, order, diagonal)  # compile and warm up
+    overhead = _path_seconds(2, twice_spin, order, diagonal)
     sites = 2
     while largest_sector(sites + 1, twice_spin) <= _PROBE_SECTOR:
         sites += 1
-    unit = max(_path_seconds(sites, twice_spin, order) - overhead, 0.0) / largest_sector(sites, twice_spin) ** 2
-    return overhead, unit
+    seconds = max(_path_seconds(sites, twice_spin, order, diagonal) - overhead, 0.0)
+    return overhead, seconds / _kernel_size(sites, twice_spin, diagonal)
 
 
-def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, lnz_only: bool) -> float:
+def _kernel_size(n_sites: int, twice_spin: int, diagonal: bool) -> int:
+    """The size that the kernel's time grows with (:func:`kernel_cost_model`)."""
+    return (twice_spin + 1) ** n_sites if diagonal else largest_sector(n_sites, twice_spin) ** 2
+
+
+def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, lnz_only: bool,
+                    diagonal: bool = False) -> float:
     """Projected kernel time: the cost model of :func:`kernel_cost_model` summed over the diagonalised classes."""
-    overhead, unit = kernel_cost_model(twice_spin, order)
+    overhead, unit = kernel_cost_model(twice_spin, order, diagonal)
     # sites of the classes per size; beyond the census, each extra bond adds at most one site
     sizes: dict[int, list[int]] = {}
     for c in census.classes:
@@ -177,7 +190,7 @@ def _kernel_seconds(census, order: int, twice_spin: int, class_growth: float, ln
             sites, factor = sizes[n], 1.0
         else:
             sites, factor = [k + (n - top) for k in sizes[top]], class_growth ** (n - top)
-        total += factor * sum(overhead + unit * largest_sector(k, twice_spin) ** 2
+        total += factor * sum(overhead + unit * _kernel_size(k, twice_spin, diagonal)
                               for k in sites if diagonalised(n, k, order, lnz_only))
     return total
 

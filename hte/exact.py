@@ -212,7 +212,7 @@ def _integer_power_traces(
     spectral radius <= R, :attr:`hte.spin_matrices.IntegerCouplings.spectral_bound`), so Chinese remaindering
     is exact.  With ``use_symmetry`` (default: when some sector has at least SYMMETRY_MIN_DIM states) only
     one unit vector per orbit of the cluster's symmetries is propagated (:mod:`hte.cluster_symmetry`); the
-    result is identical.
+    result is identical.  A sector whose matrix is diagonal (Ising bonds, Jxy = 0) is summed directly.
     """
     couplings = integer_couplings(ham)
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
@@ -227,6 +227,10 @@ def _integer_power_traces(
     primes = primes_exceeding(bits, largest * max(couplings.spectral_bound, 1) ** order)
     traces = {}
     for sector, matrix in zip(sectors, matrices):
+        diagonal = _diagonal_entries(matrix)
+        if diagonal is not None:
+            traces[sector.twice_magnetization] = _diagonal_power_traces(diagonal, order)
+            continue
         if use_symmetry:
             columns, orbit_sizes = state_orbits(sector, ham.twice_spins, automorphisms)
         else:
@@ -253,6 +257,23 @@ def _integer_power_traces(
             crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)
         ]
     return couplings.scale, traces
+
+
+def _diagonal_entries(matrix) -> np.ndarray | None:
+    """The diagonal of a sector matrix that has no off-diagonal entry (every bond with Jxy = 0), else None."""
+    rows = np.repeat(np.arange(matrix.indptr.size - 1), np.diff(matrix.indptr))
+    if not np.array_equal(rows, matrix.indices):
+        return None
+    diagonal = np.zeros(matrix.indptr.size - 1, dtype=matrix.values.dtype)
+    diagonal[rows] = matrix.values
+    return diagonal
+
+
+def _diagonal_power_traces(diagonal: np.ndarray, order: int) -> list[int]:
+    """[sum_a diagonal[a]^k for k = 0..order] as exact Python ints, from the histogram of the entries (a diagonal
+    H0 has a handful of distinct energies, so this costs O(dim + distinct * order))."""
+    values, counts = np.unique(diagonal, return_counts=True)
+    return [sum(int(c) * int(v) ** k for v, c in zip(values, counts)) for k in range(order + 1)]
 
 
 def cumulants_from_integer_moments(sums: dict[int, list[int]], scale: int, order: int) -> ClusterCumulants:

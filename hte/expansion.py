@@ -239,6 +239,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     ``quantities=("lnz",)`` asks for ln Z alone: graphs with E bonds and b bridges then start at beta^(E+b)
     (see :meth:`hte.weight_book.WeightBook.negligible`), which removes most large trees from the work.
     ``bridge_factorisation=False`` diagonalises the graphs of E = order bonds with a bridge too (same result).
+    For ln Z alone of a spin-1/2 Ising model only biconnected clusters are enumerated (:func:`star_graphs_suffice`).
     """
     from hte.errors import ParameterError
 
@@ -258,19 +259,20 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
                       key=str)
     variables = tuple(coupling_vars + occ_vars)
 
+    quantities = tuple(q for q in QUANTITIES if q in quantities)
+    if not quantities:
+        raise ParameterError(f"quantities must include some of {', '.join(QUANTITIES)}")
     t0 = time.perf_counter()
     if spec.bonds:
         if census is None:
-            census = enumerate_clusters(spec, order, workers=workers)
+            census = enumerate_clusters(spec, order, workers=workers,
+                                        biconnected_only=star_graphs_suffice(spec, model, quantities))
         classes = census.classes
     else:
         classes = []
     t_enum = time.perf_counter() - t0
     site_classes = list(spec.site_classes)
     labels = list(spec.labels)
-    quantities = tuple(q for q in QUANTITIES if q in quantities)
-    if not quantities:
-        raise ParameterError(f"quantities must include some of {', '.join(QUANTITIES)}")
     book = WeightBook(order, cache=cache, workers=workers, progress=progress, scheduler=scheduler,
                       lnz_only=quantities == ("lnz",), bridge_factorisation=bridge_factorisation)
 
@@ -327,6 +329,15 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
              "graph_classes": len(classes), "cluster_series_computed": book.computed,
              "cluster_series_from_cache": book.from_cache, "graphs_factorised": book.factorised_count}
     return LatticeSeries(variables, terms, site_counts, dict(model.occupation), order, census, stats)
+
+
+def star_graphs_suffice(spec, model: SpinModel, quantities) -> bool:
+    """True for ln Z alone of a spin-1/2 Ising model: every site class of `spec` (the lattice without its zero
+    couplings and empty classes) has spin 1/2 and every coupling left has Jxy = 0 exactly.  Then only biconnected
+    clusters have nonzero weights (:meth:`hte.weight_book.WeightBook.ising_half`)."""
+    return (tuple(quantities) == ("lnz",)
+            and all(model.spin[name] == Fraction(1, 2) for name in spec.site_classes if spec.sites_of_class(name))
+            and all(model.couplings[label].xy == 0 for label in spec.labels))
 
 
 def _is_symbolic(x) -> bool:

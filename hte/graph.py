@@ -77,3 +77,13 @@ def count_bridges(graph: ColouredGraph) -> int:
                     if low[vertex] > order[parent]:
                         bridges += 1
     return bridges
+
+
+def is_biconnected(graph: ColouredGraph) -> bool:
+    """True for a single bond and for a connected graph of three or more vertices without a cut vertex (a star
+    graph in the language of lattice statistics); False for a single site and everything else."""
+    import networkx as nx
+
+    if graph.n_edges == 0:
+        return False
+    return graph.n_vertices == 2 or nx.is_biconnected(graph.to_networkx())

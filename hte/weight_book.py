@@ -10,7 +10,9 @@ linked weight is found by subgraph subtraction,
 done in integers over common denominators.  A graph with enough bridges near the top order (E = order bonds and
 a bridge, order - 1 and two, order - 2 and a bridge between two others) is not diagonalised: its weight comes
 from rooted weights of its parts across bridges (:mod:`hte.bridge_factorisation`), and the smaller graphs'
-series come with their rooted series (:mod:`hte.rooted_series`).
+series come with their rooted series (:mod:`hte.rooted_series`).  When ln Z alone is wanted, weights that
+vanish exactly are skipped (:meth:`WeightBook.negligible`): those of graphs with too many bridges, and for
+spin-1/2 Ising bonds those of graphs with a cut vertex.
 
 Cache rows (:mod:`hte.cache`): key "raw-v1|order=N|<valued key>" holds the JSON {"lnz": [...], "m2": [...],
 "m4": [...]} of P(G) with Fractions as strings; "rooted-v1|order=N|<valued key>" holds {"u1": [[...] per site],
@@ -30,7 +32,7 @@ from hte.canonical import key_to_graph
 from hte.clusters import subgraph_counts
 from hte.exact import QUANTITIES, cluster_cumulants
 from hte.executors import run_jobs
-from hte.graph import count_bridges
+from hte.graph import count_bridges, is_biconnected
 from hte.rooted_series import rooted_cluster_series
 from hte.valued_graph import SubgraphCatalogue, ValuedGraph, hamiltonian_of, site_graph
 
@@ -109,6 +111,7 @@ class WeightBook:
         self._site_key: dict[tuple, str] = {}
         self._factorisable: dict[str, bool] = {}
         self._factorised_weights: dict[str, dict] = {}  # key -> weight (Fractions) of the factorised graphs
+        self._negligible: dict[str, bool] = {}
         self.computed = 0
         self.from_cache = 0
 
@@ -118,8 +121,28 @@ class WeightBook:
         At h = 0 a term of ln Z that uses a bridge once is a product of one-point functions <S_a> of the two
         halves, which vanish by the global spin flip (S^z) and the U(1) symmetry (S^x, S^y) of H0; so every
         bridge appears at least twice and a graph with E bonds and b bridges starts at beta^(E + b).
+        With spin-1/2 Ising bonds (:meth:`ising_half`) the weight of a graph with a cut vertex vanishes to all
+        orders (star-graph expansion).
         """
-        return self.lnz_only and vg.graph.n_edges + count_bridges(vg.graph) > self.order
+        if not self.lnz_only:
+            return False
+        if vg.key not in self._negligible:
+            self._negligible[vg.key] = (vg.graph.n_edges + count_bridges(vg.graph) > self.order
+                                        or (vg.graph.n_edges > 0 and self.ising_half(vg)
+                                            and not is_biconnected(vg.graph)))
+        return self._negligible[vg.key]
+
+    def ising_half(self, vg: ValuedGraph) -> bool:
+        """True when ln Z alone is wanted, every spin of `vg` is 1/2 and every bond has Jxy = 0.
+
+        Then the bond terms commute, and where the graph splits at a cut vertex v into G1 and G2,
+        Z(G) = sum_{s_v} Z1(s_v) Z2(s_v) with Z1(up) = Z1(down) (flip every spin of G1 at h = 0), so
+        Z(G) = Z(G1) Z(G2) / 2: ln Z is additive over the blocks, and the linked weight of every graph with a cut
+        vertex is zero.  Only biconnected graphs (star graphs) remain, and only biconnected subgraphs are
+        subtracted.  (For higher spins Z1(s_v) depends on |s_v|; with Jxy != 0 the bond terms do not commute.)
+        """
+        return (self.lnz_only and all(value[0] == Fraction(1, 2) for value in vg.vertex_values)
+                and all(value[0] == 0 for value in vg.edge_values))
 
     def factorised(self, vg: ValuedGraph) -> bool:
         """True when the graph's weight comes from the bridge factorisation (E = order bonds and a bridge, order - 1
@@ -289,7 +312,8 @@ class WeightBook:
         """Connected proper subgraphs with at least one edge: valued key -> number of embeddings in `vg`."""
         if vg.key in self.subgraph_memo:
             return self.subgraph_memo[vg.key]
-        result = self._catalogue.count(vg, subgraph_counts(vg.graph).items(), key_to_graph,
+        counts = subgraph_counts(vg.graph, biconnected_only=self.ising_half(vg))
+        result = self._catalogue.count(vg, counts.items(), key_to_graph,
                                        lambda sub: self.valued.setdefault(sub.key, sub))
         self.subgraph_memo[vg.key] = result
         return result

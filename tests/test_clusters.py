@@ -368,6 +368,49 @@ def test_subgraph_counts_of_a_single_bond_are_empty():
     assert subgraph_counts(ColouredGraph(2, (0, 0), ((0, 1, 0),))) == {}
 
 
+# ---------------------------------------------------------------------------------------------- biconnected only
+def biconnected(graph: ColouredGraph) -> bool:
+    """A single bond, or a connected graph without a cut vertex (networkx's test)."""
+    return graph.n_edges == 1 or (graph.n_vertices > 2 and nx.is_biconnected(graph.to_networkx()))
+
+
+@pytest.mark.parametrize("name, max_bonds, nearest_only", [
+    ("square", 10, True), ("square", 6, False), ("triangular", 7, True), ("kagome", 9, True),
+    ("honeycomb", 12, True), ("cubic", 6, True), ("kagome-layered", 4, False), ("ladder-unequal-legs", 7, False)])
+def test_biconnected_census_is_the_biconnected_part_of_the_full_census(name, max_bonds, nearest_only):
+    # The pruned search must find every biconnected cluster of the full search, with the same lattice constant.
+    spec = nearest_neighbours_only(name) if nearest_only else load_lattice(name)
+    full = enumerate_clusters(spec, max_bonds)
+    stars = enumerate_clusters(spec, max_bonds, biconnected_only=True)
+    expected = {c.key: c.per_cell for c in full.classes if biconnected(c.graph)}
+    assert stars.biconnected_only and not full.biconnected_only
+    assert {c.key: c.per_cell for c in stars.classes} == expected
+    assert sum(stars.clusters_per_cell) == sum(expected.values())
+
+
+# Self-avoiding polygons (undirected, unrooted) per site, counted up to translation, from memory:
+# square lattice, perimeter 4, 6, ..., 16 (OEIS A002931); triangular lattice, perimeter 3..12 (OEIS A036418).
+SQUARE_POLYGONS = {4: 1, 6: 2, 8: 7, 10: 28, 12: 124, 14: 588, 16: 2938}
+TRIANGULAR_POLYGONS = {3: 2, 4: 3, 5: 6, 6: 15, 7: 42, 8: 123, 9: 380, 10: 1212, 11: 3966, 12: 13265}
+
+
+@pytest.mark.parametrize("name, polygons", [("square", SQUARE_POLYGONS), ("triangular", TRIANGULAR_POLYGONS)])
+def test_polygons_of_the_biconnected_census_match_published_counts(name, polygons):
+    # Both lattices have one site per cell.  A polygon is the biconnected class whose sites all have degree 2.
+    top = max(polygons)
+    census = enumerate_clusters(nearest_neighbours_only(name), top, biconnected_only=True)
+    found = {c.n_bonds: c.per_cell for c in census.classes if c.n_sites == c.n_bonds and set(c.graph.degree()) == {2}}
+    assert found == polygons
+
+
+@pytest.mark.parametrize("seed", range(10))
+def test_biconnected_subgraph_counts_are_the_biconnected_part(seed):
+    rng = random.Random(100 + seed)
+    graph = random_connected_graph(rng, rng.randint(3, 8), rng.randint(1, 6), rng.choice([1, 2]))
+    expected = {k: c for k, c in subgraph_counts(graph).items() if biconnected(key_to_graph(k))}
+    assert subgraph_counts(graph, biconnected_only=True) == expected
+
+
 # ---------------------------------------------------------------------------------------------- bad input
 def test_bad_sizes_raise_parameter_errors():
     spec = load_lattice("square")

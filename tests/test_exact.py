@@ -24,6 +24,7 @@ from hte.cluster_symmetry import site_automorphisms, state_orbits
 from hte.errors import ParameterError, ResourceLimitError
 from hte.exact import (
     ClusterHamiltonian,
+    _diagonal_entries,
     _integer_power_traces,
     cluster_cumulants,
     cluster_spectrum,
@@ -320,8 +321,14 @@ TINY_MIXED_CLUSTER = ClusterHamiltonian(
             bonds=((0, 1, Fraction(1, 10**30 + 7), Fraction(3)), (1, 2, 1, Fraction(2, 10**20 + 1))),
             anisotropy=(Fraction(7, 10**25 + 3), 0, -1),
         ),
+        # Ising bonds (Jxy = 0) with anisotropy: H0 is diagonal and the kernel sums its diagonal directly.
+        ClusterHamiltonian(
+            spins=(HALF, Fraction(1), Fraction(3, 2), Fraction(1)),
+            bonds=((0, 1, 0, Fraction(-2)), (1, 2, 0, Fraction(1, 7)), (0, 2, 0, 1), (2, 3, 0, Fraction(5, 3))),
+            anisotropy=(0, Fraction(2, 3), Fraction(-1, 4), Fraction(1, 2)),
+        ),
     ],
-    ids=["mixed-spins", "huge-denominators"],
+    ids=["mixed-spins", "huge-denominators", "ising-diagonal"],
 )
 def test_tiny_cluster_matches_exact_sympy_traces(ham):
     order = 6
@@ -333,6 +340,16 @@ def test_tiny_cluster_matches_exact_sympy_traces(ham):
     expected = cumulants_from_partition_sums(*sums, order)
     result = cluster_cumulants(ham, order)
     assert [result.lnz, result.m2, result.m4] == expected
+
+
+def test_only_ising_sectors_take_the_diagonal_sum():
+    ising = ClusterHamiltonian(spins=(HALF,) * 4, bonds=tuple((u, v, 0, 1) for u, v in ring_edges(4)))
+    xxz = ClusterHamiltonian(spins=(HALF,) * 4, bonds=tuple((u, v, Fraction(1, 5), 1) for u, v in ring_edges(4)))
+    for ham, diagonal in ((ising, True), (xxz, False)):
+        couplings = integer_couplings(ham)
+        for sector in spin_sectors(ham.twice_spins, nonnegative_only=True):
+            found = _diagonal_entries(integer_sector_matrix(sector, couplings))
+            assert (found is not None) == (diagonal or sector.dim == 1)
 
 
 def test_sector_spectra_match_exact_sector_traces():

@@ -91,8 +91,12 @@ def series_from_args(args, *, default_order: int | None = None):
     if _worth_estimating(model, order):
         from hte.estimate import check_memory, estimate_run
 
-        estimate = estimate_run(spec.without_labels([l for l, c in model.couplings.items() if c.is_zero]), model,
-                                order, workers, lnz_only=args.lnz_only)
+        from hte.expansion import star_graphs_suffice
+
+        active = spec.without_labels([l for l, c in model.couplings.items() if c.is_zero])
+        active = active.without_classes([c for c, p in model.occupation.items() if p == 0])
+        estimate = estimate_run(active, model, order, workers, lnz_only=args.lnz_only,
+                                biconnected_only=star_graphs_suffice(active, model, ("lnz",) if args.lnz_only else ()))
         print(f"# {estimate.describe()}", file=sys.stderr)
         if not args.force:
             check_memory(estimate, workers)
