@@ -130,9 +130,10 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     With ``biconnected_only`` only the biconnected clusters (a single bond, or no cut vertex) are classified and
     counted, and the search skips every cluster that cannot grow into one within max_bonds bonds: one with a
     degree-1 site ("leaf") none of whose other bonds is still available, or whose size plus a lower bound on
-    the bonds that its leaves still need exceeds max_bonds (:func:`_bonds_to_mend_leaves`).  Both rules only cut
-    branches without biconnected descendants, so the biconnected clusters counted are exactly those of the full
-    search.
+    the bonds that its leaves still need exceeds max_bonds (:func:`_bonds_to_mend_leaves`); one bond below
+    max_bonds, the last bond is picked directly among the available bonds between two sites of the cluster that
+    touch every leaf.  These rules only cut branches without biconnected descendants, so the biconnected
+    clusters counted are exactly those of the full search.
 
     Returns
     -------
@@ -231,6 +232,7 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
             if biconnected_only:
                 if leaves > 0:
                     record = size == 1
+                    # ceil(leaves / 2) is a cheap first bound; _bonds_to_mend_leaves is never below it
                     if size < max_bonds - 1 and (size + (leaves + 1) // 2 > max_bonds or size + _bonds_to_mend_leaves(
                             nv, verts, refc, bond_u, bond_v, inc_ptr, inc_bond, available, reached, root) > max_bonds):
                         grow = False

@@ -60,3 +60,18 @@ def test_hopeless_request_is_refused_with_its_estimate(capsys):
     assert main(["series", "square", "--spin", "5/2", "--order", "10", "--no-tables", "--no-cache"]) == 2
     err = capsys.readouterr().err
     assert "estimate for order 10" in err and "--force" in err
+
+
+def test_ising_ln_z_run_estimates_and_enumerates_star_graphs_only(tmp_path, capsys):
+    # Order 12 asks for the pre-run estimate; ln Z of spin-1/2 Ising bonds counts biconnected clusters only.
+    # Square-lattice Ising free energy to K^12 (K = beta/4 here) from the Onsager expansion in test_ising_limit.
+    from test_ising_limit import in_beta, onsager_lnz
+
+    out = tmp_path / "ising.json"
+    argv = ["series", "square", "--order", "12", "--model", "xxz", "--couplings", "J1.xy=0,J1.z=-1,J2=0",
+            "--lnz-only", "--no-tables", "--no-cache", "--workers", "1", "--json", str(out)]
+    assert main(argv) == 0
+    assert "# estimate for order 12" in capsys.readouterr().err
+    doc = json.loads(out.read_text())
+    exact = in_beta(onsager_lnz(12), Fraction(1, 4))
+    assert [Fraction(x) for x in doc["series"]["lnZ"][1:]] == exact[1:]
