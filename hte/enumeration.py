@@ -97,10 +97,10 @@ def _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec):
         ec[k] = bond_col[c]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes):
-    """Count the cluster whose local edges are in the workspace into its graph class (added if new); returns the
-    class table, grown when full."""
+    """Count the cluster whose local edges are in the workspace into its graph class, adding the class if new
+    (the table must have room for one more: :func:`_with_room`); returns the number of classes."""
     for k in range(nv):
         vcol[k] = site_col[verts[k]]
     length = canonical_into(ws, nv, size)
@@ -108,21 +108,25 @@ def _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts,
     slot = _lookup(slots, class_hash, certs, lengths, best, length, h)
     if slots[slot] >= 0:
         counts[slots[slot]] += 1
-    else:
-        if n_classes == certs.shape[0]:
-            certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
-        certs[n_classes, :length] = best[:length]
-        lengths[n_classes] = length
-        counts[n_classes] = 1
-        class_hash[n_classes] = h
-        slots[slot] = n_classes
-        n_classes += 1
-        if 2 * n_classes > slots.shape[0]:
-            slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
-    return certs, lengths, counts, class_hash, slots, n_classes
+        return n_classes
+    certs[n_classes, :length] = best[:length]
+    lengths[n_classes] = length
+    counts[n_classes] = 1
+    class_hash[n_classes] = h
+    slots[slot] = n_classes
+    return n_classes + 1
 
 
 @njit(cache=True)
+def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
+    """The class table with room for one more class and its slot table at most half full."""
+    if n_classes == certs.shape[0]:
+        certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
+    if 2 * n_classes > slots.shape[0]:
+        slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
+    return certs, lengths, counts, class_hash, slots
+
+
 def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
                             biconnected_only=False):
     """Visit every connected bond cluster of <= max_bonds bonds whose smallest bond id is one of `roots`.
@@ -147,6 +151,15 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     per_size : int64[max_bonds + 1]
         Number of clusters with n bonds.
     """
+    # The mode goes in as None (all clusters) or True, so that numba compiles each mode on its own and prunes the
+    # other's branches: the full search runs as fast as without the biconnected rules.
+    return _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
+                      True if biconnected_only else None)
+
+
+@njit(cache=True)
+def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites, star):
+    """:func:`enumerate_bond_clusters`, with ``star`` None for all clusters and True for the biconnected ones."""
     n_bonds = bond_u.shape[0]
     max_deg = 0
     for s in range(n_sites):
@@ -154,7 +167,7 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
         if d > max_deg:
             max_deg = d
     reached = np.zeros(n_bonds, np.bool_)
-    available = np.zeros(n_bonds, np.bool_)  # biconnected_only: in the untried list of the current level
+    available = np.zeros(n_bonds, np.bool_)  # star mode: in the untried list of the current level
     local = -np.ones(n_sites, np.int64)
     refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
@@ -184,7 +197,6 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
         reached[root] = True
         nv = 0
         size = 0
-        leaves = 0
         buf[0] = root
         seg_start[0] = 0
         seg_end[0] = 1
@@ -195,10 +207,12 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
             if seg_pos[d] == seg_end[d]:
                 for k in range(seg_new[d], seg_end[d]):
                     reached[buf[k]] = False
-                    available[buf[k]] = False
-                if d > 0:
-                    for k in range(seg_start[d], seg_new[d]):
-                        available[buf[k]] = True  # still untried at the level below
+                if star is not None:
+                    for k in range(seg_new[d], seg_end[d]):
+                        available[buf[k]] = False
+                    if d > 0:
+                        for k in range(seg_start[d], seg_new[d]):
+                            available[buf[k]] = True  # still untried at the level below
                 d -= 1
                 if d >= 0:
                     # pop the bond chosen at level d
@@ -209,13 +223,11 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                         if refc[s] == 0:
                             local[s] = -1
                             nv -= 1
-                            leaves -= 1
-                        elif refc[s] == 1:
-                            leaves += 1
                 continue
             b = buf[seg_pos[d]]
             seg_pos[d] += 1
-            available[b] = False
+            if star is not None:
+                available[b] = False
             cluster[size] = b
             size += 1
             for s in (bond_u[b], bond_v[b]):
@@ -223,53 +235,60 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                     local[s] = nv
                     verts[nv] = s
                     nv += 1
-                    leaves += 1
-                elif refc[s] == 1:
-                    leaves -= 1
                 refc[s] += 1
             record = True
             grow = size < max_bonds
-            if biconnected_only:
+            leaves = 0
+            if star is not None:
+                for k in range(nv):
+                    if refc[verts[k]] == 1:
+                        leaves += 1
                 if leaves > 0:
                     record = size == 1
                     # ceil(leaves / 2) is a cheap first bound; _bonds_to_mend_leaves is never below it
                     if size < max_bonds - 1 and (size + (leaves + 1) // 2 > max_bonds or size + _bonds_to_mend_leaves(
                             nv, verts, refc, bond_u, bond_v, inc_ptr, inc_bond, available, reached, root) > max_bonds):
                         grow = False
-            if biconnected_only and grow and size == max_bonds - 1:
-                # the last bond must leave no leaf: it joins two sites of the cluster, every leaf one of them
-                grow = False
-                first = -1  # scan the bonds of the first leaf, or of every site when there is no leaf
-                second = -1
-                for k in range(nv if 0 < leaves <= 2 else 0):
-                    if refc[verts[k]] == 1:
-                        if first < 0:
-                            first = verts[k]
-                        else:
-                            second = verts[k]
-                for k in range(nv if leaves == 0 else (1 if leaves <= 2 else 0)):
-                    s = verts[k] if leaves == 0 else first
-                    for p in range(inc_ptr[s], inc_ptr[s + 1]):
-                        f = inc_bond[p]
-                        t = bond_v[f] if bond_u[f] == s else bond_u[f]
-                        if refc[t] == 0 or (leaves == 0 and bond_u[f] != s) or (leaves == 2 and t != second):
-                            continue
-                        if not (available[f] or (f > root and not reached[f])):
-                            continue
-                        cluster[size] = f
-                        _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                        if _is_biconnected(nv, size + 1, eu, ev, scratch):
-                            certs, lengths, counts, class_hash, slots, n_classes = _classify(
-                                ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
-                                slots, n_classes)
-                            per_size[size + 1] += 1
+                if grow and size == max_bonds - 1:
+                    # the last bond must leave no leaf: it joins two sites of the cluster, every leaf one of them
+                    grow = False
+                    first = -1  # scan the bonds of the first leaf, or of every site when there is no leaf
+                    second = -1
+                    for k in range(nv if 0 < leaves <= 2 else 0):
+                        if refc[verts[k]] == 1:
+                            if first < 0:
+                                first = verts[k]
+                            else:
+                                second = verts[k]
+                    for k in range(nv if leaves == 0 else (1 if leaves <= 2 else 0)):
+                        s = verts[k] if leaves == 0 else first
+                        for p in range(inc_ptr[s], inc_ptr[s + 1]):
+                            f = inc_bond[p]
+                            t = bond_v[f] if bond_u[f] == s else bond_u[f]
+                            if refc[t] == 0 or (leaves == 0 and bond_u[f] != s) or (leaves == 2 and t != second):
+                                continue
+                            if not (available[f] or (f > root and not reached[f])):
+                                continue
+                            cluster[size] = f
+                            _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                            if _is_biconnected(nv, size + 1, eu, ev, scratch):
+                                n_classes = _classify(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
+                                                      counts, class_hash, slots, n_classes)
+                                if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+                                    certs, lengths, counts, class_hash, slots = _with_room(
+                                        certs, lengths, counts, class_hash, slots, n_classes)
+                                per_size[size + 1] += 1
             if record:
                 _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                if biconnected_only and size > 1:
-                    record = _is_biconnected(nv, size, eu, ev, scratch)
+                if star is not None:
+                    if size > 1:
+                        record = _is_biconnected(nv, size, eu, ev, scratch)
             if record:
-                certs, lengths, counts, class_hash, slots, n_classes = _classify(
-                    ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes)
+                n_classes = _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash,
+                                      slots, n_classes)
+                if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+                    certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots,
+                                                                           n_classes)
                 per_size[size] += 1
             if grow:
                 ns = seg_end[d]
@@ -283,7 +302,8 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                         f = inc_bond[p]
                         if f > root and not reached[f]:
                             reached[f] = True
-                            available[f] = True
+                            if star is not None:
+                                available[f] = True
                             buf[k] = f
                             k += 1
                 d += 1
@@ -298,9 +318,6 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                     if refc[s] == 0:
                         local[s] = -1
                         nv -= 1
-                        leaves -= 1
-                    elif refc[s] == 1:
-                        leaves += 1
         reached[root] = False
     return certs[:n_classes], lengths[:n_classes], counts[:n_classes], per_size
 
