@@ -41,7 +41,6 @@ from hte.modular import crt_signed, power_traces_mod, prime_bits_for, primes_exc
 from hte.spin_matrices import integer_couplings
 
 HALF = Fraction(1, 2)
-_SIZING_PRIME = 2**31 - 1  # any prime above every denominator: its residues show the pattern of nonzeros
 
 
 def applies(ham) -> bool:
@@ -138,30 +137,39 @@ def _residue(value: Fraction, prime: int) -> int:
 
 
 @lru_cache(maxsize=256)
-def _adjacent_mod(n: int, lower: int, prime: int) -> tuple[sparse.csr_matrix, ...]:
-    """The seminormal matrices of s_0 .. s_{n-2} modulo `prime` (int64 residues in [0, p))."""
+def _adjacent_mod(n: int, lower: int, prime: int | None) -> tuple[sparse.csr_matrix, ...]:
+    """The seminormal matrices of s_0 .. s_{n-2} modulo `prime` (int64 residues in [0, p)); with prime None,
+    their patterns (every nonzero entry 1)."""
     actions, _ = _adjacent_actions(n, lower)
     size = len(standard_tableaux(n, lower))
     matrices = []
     for rows, cols, values in actions:
-        numerators = np.array([v.numerator for v in values], dtype=np.int64) % prime
-        denominators = np.array([v.denominator for v in values], dtype=np.int64)
-        inverses = {int(d): pow(int(d), -1, prime) for d in np.unique(denominators)}
-        data = numerators * np.array([inverses[int(d)] for d in denominators], dtype=np.int64) % prime
+        if prime is None:
+            data = np.ones(len(values), dtype=np.int64)
+        else:
+            numerators = np.array([v.numerator for v in values], dtype=np.int64) % prime
+            denominators = np.array([v.denominator for v in values], dtype=np.int64)
+            inverses = {int(d): pow(int(d), -1, prime) for d in np.unique(denominators)}
+            data = numerators * np.array([inverses[int(d)] for d in denominators], dtype=np.int64) % prime
         matrices.append(sparse.csr_matrix((data, (rows, cols)), shape=(size, size)))
     return tuple(matrices)
 
 
-def _block_matrix_mod(n: int, lower: int, bonds, prime: int) -> sparse.csr_matrix:
-    """A_S modulo `prime` (int64 residues in [0, p)), A = sum_b zz_b (2 P_b - 1), bonds as (u, v, zz)."""
+def _block_matrix_mod(n: int, lower: int, bonds, prime: int | None) -> sparse.csr_matrix:
+    """A_S modulo `prime` (int64 residues in [0, p)), A = sum_b zz_b (2 P_b - 1), bonds as (u, v, zz).  With prime
+    None, a pattern that contains the nonzeros of A_S modulo every prime (entries 1, nothing can cancel)."""
     adjacent = _adjacent_mod(n, lower, prime)
-    size = adjacent[0].shape[0] if adjacent else 1
+    size = len(standard_tableaux(n, lower))
 
     def reduced(matrix):
-        matrix.data %= prime
-        matrix.eliminate_zeros()
+        if prime is None:
+            matrix.data[:] = 1
+        else:
+            matrix.data %= prime
+            matrix.eliminate_zeros()
         return matrix
 
+    modulus = prime or 2  # for the pattern every coefficient is 1
     total = sparse.csr_matrix((size, size), dtype=np.int64)
     diagonal = 0
     for u, v, zz in bonds:
@@ -169,9 +177,10 @@ def _block_matrix_mod(n: int, lower: int, bonds, prime: int) -> sparse.csr_matri
         exchange = adjacent[j - 1]
         for k in range(j - 2, i - 1, -1):
             exchange = reduced(adjacent[k] @ reduced(exchange @ adjacent[k]))
-        total = reduced(total + exchange * (2 * zz % prime))
+        total = reduced(total + exchange * (1 if prime is None else 2 * zz % modulus))
         diagonal -= zz
-    return reduced(total + sparse.identity(size, dtype=np.int64, format="csr") * (diagonal % prime)).tocsr()
+    identity = sparse.identity(size, dtype=np.int64, format="csr")
+    return reduced(total + identity * (1 if prime is None else diagonal % modulus)).tocsr()
 
 
 @lru_cache(maxsize=256)
@@ -203,7 +212,7 @@ def total_spin_power_sums(ham, order: int, block_entries: int = 2**20) -> tuple[
     for lower in range(n // 2 + 1):
         twice_s = n - 2 * lower
         size = len(standard_tableaux(n, lower))
-        sizing = _block_matrix_mod(n, lower, bonds, _SIZING_PRIME)  # the pattern of nonzeros fixes the prime size
+        sizing = _block_matrix_mod(n, lower, bonds, None)  # the pattern of nonzeros fixes the prime size
         bits = prime_bits_for(int(np.diff(sizing.indptr).max(initial=1)), 2**62, size)
         primes = primes_exceeding(bits, size * max(couplings.spectral_bound, 1) ** order)
         residues = []
@@ -248,6 +257,6 @@ def estimated_cost(ham) -> float:
     bonds = [(order_map[u], order_map[v], zz) for u, v, _, zz in couplings.bonds]
     cost = 0.0
     for lower in range(n // 2 + 1):
-        matrix = _block_matrix_mod(n, lower, bonds, _SIZING_PRIME)
+        matrix = _block_matrix_mod(n, lower, bonds, None)
         cost += float(matrix.shape[0]) * matrix.nnz
     return cost
