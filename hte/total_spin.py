@@ -194,16 +194,18 @@ def _gauge_mod(n: int, lower: int, prime: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def multiplet_weight(twice_s: int, q: int) -> int:
-    """w_q(S) = sum_{m=-S..S} (2m)^q."""
-    return sum((2 * m2 - twice_s) ** q for m2 in range(twice_s + 1)) if q else twice_s + 1
+    """w_q(S) = sum_{m=-S..S} (2m)^q (w_0 = 2S + 1, the multiplet's size)."""
+    return sum((2 * m2 - twice_s) ** q for m2 in range(twice_s + 1))
 
 
-def total_spin_power_sums(ham, order: int, block_entries: int = 2**20) -> tuple[int, dict[int, list[int]]]:
+def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
     """scale and s_q[k] = sum_m (2m)^q Tr_m(A^k), q = 0, 2, 4, k = 0..order, for a cluster where :func:`applies`.
 
     Same result as summing the S^z-sector traces of :func:`hte.exact._integer_power_traces`; the input of
     :func:`hte.exact.cumulants_from_integer_moments`.
     """
+    from hte.exact import propagation_block  # hte.exact calls this module
+
     n = ham.n_sites
     couplings = integer_couplings(ham)
     order_map = _bandwidth_order(n, [(u, v) for u, v, _, _ in couplings.bonds])
@@ -222,8 +224,7 @@ def total_spin_power_sums(ham, order: int, block_entries: int = 2**20) -> tuple[
             residues.append(power_traces_mod(
                 matrix.indptr.astype(np.int64), matrix.indices.astype(np.int64),
                 symmetric_residues(matrix.data.astype(np.int64), prime), row_weight,
-                np.arange(size, dtype=np.int64), column_weight, order, prime,
-                max(1, min(64, block_entries // size))))
+                np.arange(size, dtype=np.int64), column_weight, order, prime, propagation_block(size)))
         traces = [crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)]
         for q in sums:
             weight = multiplet_weight(twice_s, q)
