@@ -83,10 +83,8 @@ from fractions import Fraction
 from math import lcm
 from typing import NamedTuple
 
-import numpy as np
-
 from hte.canonical import certificate_to_graph
-from hte.enumeration import enumerate_bond_clusters
+from hte.clusters import subgraph_certificates
 from hte.exact import QUANTITIES
 from hte.graph import ColouredGraph, count_bridges
 from hte.valued_graph import SubgraphCatalogue, ValuedGraph, make_valued
@@ -295,32 +293,6 @@ def split_for_excess_two(vg: ValuedGraph, order: int) -> ExcessTwoParts:
                           _jz(vg, third))
 
 
-def rooted_subgraph_certificates(graph: ColouredGraph, root: int) -> list[tuple[tuple, int]]:
-    """(canonical certificate, count) of the connected proper subgraphs of `graph` with >= 1 edge that contain
-    vertex `root`, by class (:mod:`hte.canonical` certificates; count = number of such edge subsets).
-
-    The edges at the root are numbered first, so every such subset has one of them as its smallest edge, and the
-    compiled enumeration rooted at those edges visits each subset once
-    (:func:`hte.enumeration.enumerate_bond_clusters`).
-    """
-    m = graph.n_edges
-    if m <= 1:
-        return []
-    edges = sorted(graph.edges, key=lambda e: root not in e[:2])
-    n_first = sum(1 for e in edges if root in e[:2])
-    array = np.asarray(edges, np.int64)
-    ends = np.concatenate([array[:, 0], array[:, 1]])
-    ids = np.concatenate([np.arange(m), np.arange(m)]).astype(np.int64)
-    order = np.lexsort((ids, ends))
-    pointer = np.zeros(graph.n_vertices + 1, np.int64)
-    np.add.at(pointer, ends + 1, 1)
-    certs, lengths, counts, _ = enumerate_bond_clusters(
-        m - 1, np.arange(n_first, dtype=np.int64), array[:, 0].copy(), array[:, 1].copy(), array[:, 2].copy(),
-        np.asarray(graph.vertex_colours, np.int64), np.cumsum(pointer), ids[order], graph.n_vertices,
-        False)
-    return [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
-
-
 class RootedWeights:
     """Rooted series u_1, u_3 of rooted classes and their rooted linked weights U_1, U_3 (cached in a run).
 
@@ -361,7 +333,7 @@ class RootedWeights:
         """{rooted key: count} of the connected proper subgraphs of `rvg` with >= 1 bond that contain the root."""
         if rvg.key in self.subgraph_memo:
             return self.subgraph_memo[rvg.key]
-        result = self._catalogue.count(rvg, rooted_subgraph_certificates(rvg.graph, _root_of(rvg)),
+        result = self._catalogue.count(rvg, subgraph_certificates(rvg.graph, _root_of(rvg)),
                                        certificate_to_graph, lambda sub: self.valued.setdefault(sub.key, sub))
         self.subgraph_memo[rvg.key] = result
         return result

@@ -260,6 +260,33 @@ def count_site_animals(spec: LatticeSpec, max_sites: int) -> list[int]:
 
 
 # ---------------------------------------------------------------------------------------------- subgraphs
+def subgraph_certificates(graph: ColouredGraph, root: int | None = None,
+                          biconnected_only: bool = False) -> list[tuple[tuple, int]]:
+    """(canonical certificate, count) of the connected proper subgraphs of `graph` with >= 1 edge, by class: all of
+    them, or those that contain vertex `root`, or only the biconnected ones (count = number of such edge subsets).
+
+    With a root, the edges at the root are numbered first, so every such subset has one of them as its smallest
+    edge, and the compiled enumeration rooted at those edges visits each subset once
+    (:func:`hte.enumeration.enumerate_bond_clusters`).
+    """
+    m = graph.n_edges
+    if m <= 1:
+        return []
+    edges = sorted(graph.edges, key=lambda e: root is not None and root not in e[:2])
+    n_roots = m if root is None else sum(1 for e in edges if root in e[:2])
+    array = np.asarray(edges, np.int64)
+    ends = np.concatenate([array[:, 0], array[:, 1]])
+    ids = np.concatenate([np.arange(m), np.arange(m)]).astype(np.int64)
+    order = np.lexsort((ids, ends))
+    pointer = np.zeros(graph.n_vertices + 1, np.int64)
+    np.add.at(pointer, ends + 1, 1)
+    certs, lengths, counts, _ = enumerate_bond_clusters(
+        m - 1, np.arange(n_roots, dtype=np.int64), array[:, 0].copy(), array[:, 1].copy(), array[:, 2].copy(),
+        np.asarray(graph.vertex_colours, np.int64), np.cumsum(pointer), ids[order], graph.n_vertices,
+        biconnected_only)
+    return [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
+
+
 def subgraph_counts(graph: ColouredGraph, biconnected_only: bool = False) -> dict[str, int]:
     """Embedding counts of the connected proper subgraphs of `graph` (only the biconnected ones if asked).
 
@@ -267,20 +294,8 @@ def subgraph_counts(graph: ColouredGraph, biconnected_only: bool = False) -> dic
     of them) isomorphic to that class.  Single sites are not included; they are counted by colour with
     :func:`graph.vertex_colours`.  These are the multiplicities needed for subgraph subtraction.
     """
-    m = graph.n_edges
-    if m <= 1:
-        return {}
-    edges = np.asarray(graph.edges, np.int64)
-    n = graph.n_vertices
-    ends = np.concatenate([edges[:, 0], edges[:, 1]])
-    ids = np.concatenate([np.arange(m), np.arange(m)]).astype(np.int64)
-    order = np.lexsort((ids, ends))
-    ptr = np.zeros(n + 1, np.int64)
-    np.add.at(ptr, ends + 1, 1)
-    certs, lengths, counts, _ = enumerate_bond_clusters(
-        m - 1, np.arange(m, dtype=np.int64), edges[:, 0].copy(), edges[:, 1].copy(), edges[:, 2].copy(),
-        np.asarray(graph.vertex_colours, np.int64), np.cumsum(ptr), ids[order], n, biconnected_only)
-    return {certificate_key(certs[i, : lengths[i]]): int(counts[i]) for i in range(counts.size)}
+    return {certificate_key(cert): count
+            for cert, count in subgraph_certificates(graph, biconnected_only=biconnected_only)}
 
 
 def default_workers() -> int:

@@ -254,13 +254,15 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                     grow = False
                     first = -1  # scan the bonds of the first leaf, or of every site when there is no leaf
                     second = -1
-                    for k in range(nv if 0 < leaves <= 2 else 0):
-                        if refc[verts[k]] == 1:
-                            if first < 0:
-                                first = verts[k]
-                            else:
-                                second = verts[k]
-                    for k in range(nv if leaves == 0 else (1 if leaves <= 2 else 0)):
+                    if 0 < leaves <= 2:
+                        for k in range(nv):
+                            if refc[verts[k]] == 1:
+                                if first < 0:
+                                    first = verts[k]
+                                else:
+                                    second = verts[k]
+                    scanned = nv if leaves == 0 else (1 if leaves <= 2 else 0)  # more than two leaves: no way
+                    for k in range(scanned):
                         s = verts[k] if leaves == 0 else first
                         for p in range(inc_ptr[s], inc_ptr[s + 1]):
                             f = inc_bond[p]

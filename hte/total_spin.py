@@ -207,15 +207,12 @@ def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
     from hte.exact import propagation_block  # hte.exact calls this module
 
     n = ham.n_sites
-    couplings = integer_couplings(ham)
-    order_map = _bandwidth_order(n, [(u, v) for u, v, _, _ in couplings.bonds])
-    bonds = [(order_map[u], order_map[v], zz) for u, v, _, zz in couplings.bonds]
+    couplings, bonds = _relabelled_bonds(ham)
     sums = {q: [0] * (order + 1) for q in (0, 2, 4)}
     for lower in range(n // 2 + 1):
         twice_s = n - 2 * lower
         size = len(standard_tableaux(n, lower))
-        sizing = _block_matrix_mod(n, lower, bonds, None)  # the pattern of nonzeros fixes the prime size
-        bits = prime_bits_for(int(np.diff(sizing.indptr).max(initial=1)), 2**62, size)
+        bits = prime_bits_for(_pattern_size(n, lower, bonds)[0], 2**62, size)  # the nonzeros fix the prime size
         primes = primes_exceeding(bits, size * max(couplings.spectral_bound, 1) ** order)
         residues = []
         for prime in primes:
@@ -252,12 +249,22 @@ def _bandwidth_order(n: int, edges) -> list[int]:
 def estimated_cost(ham) -> float:
     """Multiply-adds per prime and per pair of powers of :func:`total_spin_power_sums` (sum over the blocks of
     dimension x nonzeros), to weigh it against the S^z sectors (:func:`hte.exact.cluster_cumulants`)."""
-    n = ham.n_sites
+    _, bonds = _relabelled_bonds(ham)
+    return sum(float(len(standard_tableaux(ham.n_sites, lower))) * _pattern_size(ham.n_sites, lower, bonds)[1]
+               for lower in range(ham.n_sites // 2 + 1))
+
+
+def _relabelled_bonds(ham):
+    """The integer couplings of `ham` and its bonds (u, v, zz) with the sites relabelled by
+    :func:`_bandwidth_order`."""
     couplings = integer_couplings(ham)
-    order_map = _bandwidth_order(n, [(u, v) for u, v, _, _ in couplings.bonds])
-    bonds = [(order_map[u], order_map[v], zz) for u, v, _, zz in couplings.bonds]
-    cost = 0.0
-    for lower in range(n // 2 + 1):
-        matrix = _block_matrix_mod(n, lower, bonds, None)
-        cost += float(matrix.shape[0]) * matrix.nnz
-    return cost
+    order_map = _bandwidth_order(ham.n_sites, [(u, v) for u, v, _, _ in couplings.bonds])
+    return couplings, tuple((order_map[u], order_map[v], zz) for u, v, _, zz in couplings.bonds)
+
+
+@lru_cache(maxsize=1024)
+def _pattern_size(n: int, lower: int, bonds: tuple) -> tuple[int, int]:
+    """(longest row, nonzeros) of the cancellation-free pattern of block (n - lower, lower): bounds for every
+    prime (:func:`_block_matrix_mod` with prime None); remembered, as the cost model asks first."""
+    pattern = _block_matrix_mod(n, lower, bonds, None)
+    return int(np.diff(pattern.indptr).max(initial=1)), int(pattern.nnz)
