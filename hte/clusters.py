@@ -78,9 +78,11 @@ class ClusterCensus:
     site_classes: tuple[str, ...]
     labels: tuple[str, ...]
     classes: list[GraphClass]
-    clusters_per_cell: list[int]  # index n = number of clusters with n bonds (index 0 unused, 0)
+    clusters_per_cell: list[int]  # index n = number of clusters kept with n bonds (index 0 unused, 0)
     seconds: float = 0.0  # wall time of the whole census
     biconnected_only: bool = False  # only the biconnected clusters (star graphs) were kept
+    insertions: int | None = None  # if set, clusters whose weights with this many M insertions vanish to
+    #                                beta^max_bonds were dropped, all but a few (hte.enumeration)
 
     def per_site(self, count: int) -> Fraction:
         """Convert a per-cell count to a per-site lattice constant (exact)."""
@@ -170,15 +172,15 @@ def _site_neighbours(box: _Box):
 
 # ---------------------------------------------------------------------------------------------- census
 def _census_worker(args):
-    box, roots, max_bonds, biconnected_only = args
+    box, roots, max_bonds, biconnected_only, insertions = args
     certs, lengths, counts, per_size = enumerate_bond_clusters(
         max_bonds, roots, box.bond_u, box.bond_v, box.bond_col, box.site_col, box.inc_ptr, box.inc_bond,
-        box.n_sites, biconnected_only)
+        box.n_sites, biconnected_only, insertions)
     classes = [(tuple(certs[i, : lengths[i]].tolist()), int(counts[i])) for i in range(counts.size)]
     return classes, per_size.tolist()
 
 
-def _roots_by_work(box: _Box, max_bonds: int, biconnected_only: bool) -> list[np.ndarray]:
+def _roots_by_work(box: _Box, max_bonds: int, biconnected_only: bool, insertions) -> list[np.ndarray]:
     """The root bonds one by one, the most laborious first, for a pool that hands out jobs as workers free up.
 
     The work of a root is estimated by its number of clusters three bonds smaller, a small fraction of the
@@ -188,14 +190,14 @@ def _roots_by_work(box: _Box, max_bonds: int, biconnected_only: bool) -> list[np
     pilot = max(1, max_bonds - 3)
     work = []
     for root in box.root_bonds:
-        _, per_size = _census_worker((box, np.array([root]), pilot, biconnected_only))
+        _, per_size = _census_worker((box, np.array([root]), pilot, biconnected_only, insertions))
         work.append(sum(per_size))
     order = sorted(range(box.root_bonds.size), key=lambda k: -work[k])
     return [box.root_bonds[k : k + 1] for k in order]
 
 
 def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, progress=None,
-                       biconnected_only: bool = False) -> ClusterCensus:
+                       biconnected_only: bool = False, insertions: int | None = None) -> ClusterCensus:
     """Classify all connected bond clusters of `spec` with 1..max_bonds bonds, counted per unit cell.
 
     Parameters
@@ -212,6 +214,11 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
     biconnected_only : bool
         Keep only the biconnected clusters (single bonds and clusters without a cut vertex); the search then
         skips the clusters that cannot grow into one (:func:`hte.enumeration.enumerate_bond_clusters`).
+    insertions : int, optional
+        Drop the clusters whose linked weights with up to this many magnetisation insertions (0 for ln Z, 2 for
+        T chi, 4 for M4) vanish to beta^max_bonds (:mod:`hte.vanishing_weights`), all but a few that a cheap
+        bound misses: a census for a series to order max_bonds that classifies far fewer clusters.  None keeps
+        them all.
     """
     from hte.errors import ParameterError
 
@@ -231,12 +238,13 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
             progress(f"root bonds done: {len(results)}/{len(jobs)}, {elapsed:.0f} s elapsed")
 
     if workers <= 1 or box.root_bonds.size == 1:
-        jobs = [(box, np.array([root], np.int64), max_bonds, biconnected_only) for root in box.root_bonds]
+        jobs = [(box, np.array([root], np.int64), max_bonds, biconnected_only, insertions) for root in box.root_bonds]
         for job in jobs:
             results.append(_census_worker(job))
             report()
     else:
-        jobs = [(box, roots, max_bonds, biconnected_only) for roots in _roots_by_work(box, max_bonds, biconnected_only)]
+        jobs = [(box, roots, max_bonds, biconnected_only, insertions)
+                for roots in _roots_by_work(box, max_bonds, biconnected_only, insertions)]
         with ProcessPoolExecutor(max_workers=min(workers, len(jobs))) as pool:
             for result in as_completed([pool.submit(_census_worker, job) for job in jobs]):
                 results.append(result.result())
@@ -249,7 +257,7 @@ def enumerate_clusters(spec: LatticeSpec, max_bonds: int, *, workers: int = 1, p
     graph_classes.sort(key=lambda g: (g.n_bonds, g.n_sites, g.key))
     elapsed = time.perf_counter() - start
     return ClusterCensus(spec.name, max_bonds, spec.n_sites, tuple(spec.site_classes), tuple(spec.labels),
-                         graph_classes, [int(x) for x in per_size], elapsed, biconnected_only)
+                         graph_classes, [int(x) for x in per_size], elapsed, biconnected_only, insertions)
 
 
 def count_site_animals(spec: LatticeSpec, max_sites: int) -> list[int]:

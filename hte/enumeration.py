@@ -128,8 +128,17 @@ def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
 
 
 def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
-                            biconnected_only=False):
+                            biconnected_only=False, insertions=None):
     """Visit every connected bond cluster of <= max_bonds bonds whose smallest bond id is one of `roots`.
+
+    With ``insertions`` = k (0, 2 or 4) the clusters whose linked weights with up to k magnetisation insertions
+    vanish to beta^max_bonds (lowest order E + b - P_k > max_bonds, :mod:`hte.vanishing_weights`) are, for the
+    most part, walked through but neither classified nor counted, which saves most of their cost: a cluster is
+    dropped when a cheap lower bound on b - P_k (:func:`_uncovered_bridges_bound`) shows it; the few that the
+    bound misses are kept and left to the caller.  The search also skips every cluster with L degree-1 sites and
+    E + ceil((L - k) / 2) > max_bonds: in any larger cluster each of those sites either keeps degree 1, and so
+    ends a bridge that at most k of them can leave used once, or takes a new bond, and a bond serves two of them
+    at most.
 
     With ``biconnected_only`` only the biconnected clusters (a single bond, or no cut vertex) are classified and
     counted, and the search skips every cluster that cannot grow into one within max_bonds bonds: one with a
@@ -154,12 +163,13 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     # The mode goes in as None (all clusters) or True, so that numba compiles each mode on its own and prunes the
     # other's branches: the full search runs as fast as without the biconnected rules.
     return _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
-                      True if biconnected_only else None)
+                      True if biconnected_only else None, -1 if insertions is None else int(insertions))
 
 
 @njit(cache=True)
-def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites, star):
-    """:func:`enumerate_bond_clusters`, with ``star`` None for all clusters and True for the biconnected ones."""
+def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites, star, insertions):
+    """:func:`enumerate_bond_clusters`, with ``star`` None for all clusters and True for the biconnected ones,
+    ``insertions`` -1 for no rule on vanishing weights."""
     n_bonds = bond_u.shape[0]
     max_deg = 0
     for s in range(n_sites):
@@ -239,10 +249,13 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             record = True
             grow = size < max_bonds
             leaves = 0
-            if star is not None:
+            if star is not None or insertions >= 0:
                 for k in range(nv):
                     if refc[verts[k]] == 1:
                         leaves += 1
+            if insertions >= 0 and size + (leaves - insertions + 1) // 2 > max_bonds:
+                grow = False
+            if star is not None:
                 if leaves > 0:
                     record = size == 1
                     # ceil(leaves / 2) is a cheap first bound; _bonds_to_mend_leaves is never below it
@@ -285,6 +298,8 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 if star is not None:
                     if size > 1:
                         record = _is_biconnected(nv, size, eu, ev, scratch)
+                elif insertions >= 0 and 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
+                    record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves, insertions) <= max_bonds
             if record:
                 n_classes = _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash,
                                       slots, n_classes)
@@ -356,6 +371,21 @@ def _bonds_to_mend_leaves(nv, verts, refc, bond_u, bond_v, inc_ptr, inc_bond, av
             else:
                 n2 += 1
     return (n1 + 1) // 2 + n2
+
+
+@njit(cache=True, inline="always")
+def _uncovered_bridges_bound(nv, ne, verts, refc, leaves, insertions):
+    """A cheap lower bound on b - P_k (:mod:`hte.vanishing_weights`): the T-join of at most k nodes covers the
+    bridges of at most k of the L degree-1 sites, so at least L - k stay uncovered; in a tree the bridges left
+    uncovered form a T-join for T = (sites of odd degree) xor (the k nodes), so at least ceil((odd - k) / 2)."""
+    bound = leaves - insertions
+    if nv == ne + 1:
+        odd = 0
+        for k in range(nv):
+            odd += refc[verts[k]] & 1
+        if (odd - insertions + 1) // 2 > bound:
+            bound = (odd - insertions + 1) // 2
+    return bound
 
 
 @njit(cache=True)

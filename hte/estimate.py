@@ -22,6 +22,8 @@ from fractions import Fraction
 
 from hte.clusters import enumerate_clusters
 from hte.errors import ResourceLimitError
+from hte.exact import QUANTITIES
+from hte.vanishing_weights import insertions_for
 
 _PROBE_CLUSTERS = 200_000
 _PROBE_SECTOR = 2000  # the kernel-cost probe's largest sector (about 0.1-0.5 s at orders 10-18)
@@ -101,18 +103,21 @@ def diagonalised(n_bonds: int, n_sites: int, order: int, lnz_only: bool) -> bool
     return below_top > 2 or n_bonds < below_top + 1
 
 
-def estimate_run(spec, model, order: int, workers: int = 1, lnz_only: bool = False,
+def estimate_run(spec, model, order: int, workers: int = 1, quantities=QUANTITIES,
                  biconnected_only: bool = False) -> RunEstimate:
-    """Estimate time and memory of the series run of `model` on `spec` to `order` (see module docstring);
-    `lnz_only` for runs of ln Z alone, `biconnected_only` when only biconnected clusters are enumerated
-    (:func:`hte.expansion.star_graphs_suffice`)."""
+    """Estimate time and memory of the series run of `model` on `spec` to `order` (see module docstring) for
+    `quantities` (names of :data:`hte.exact.QUANTITIES`); `biconnected_only` when only biconnected clusters are
+    enumerated (:func:`hte.expansion.star_graphs_suffice`).  The probe censuses keep, like the run's, only the
+    clusters whose weights can be nonzero at their own top order (:mod:`hte.vanishing_weights`)."""
+    lnz_only = tuple(quantities) == ("lnz",)
     twice_spin = max(int(2 * s) for s in model.spin.values())
     counts, classes, seconds = [], [], []
     n = 0
     while n < order:
         n += 1
         start = time.perf_counter()
-        census = enumerate_clusters(spec, n, biconnected_only=biconnected_only)
+        census = enumerate_clusters(spec, n, biconnected_only=biconnected_only,
+                                    insertions=insertions_for(quantities))
         seconds.append(time.perf_counter() - start)
         counts.append(sum(census.clusters_per_cell))
         classes.append(len(census.classes))

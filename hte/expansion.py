@@ -32,10 +32,11 @@ import sympy
 
 from hte.clusters import ClusterCensus, GraphClass, enumerate_clusters
 from hte.exact import QUANTITIES
-from hte.graph import ColouredGraph, count_bridges
+from hte.graph import ColouredGraph
 from hte.models import SpinModel
 from hte.polynomial import add_into, interpolate, interpolation_points, lattice_size
 from hte.valued_graph import ValuedGraph, make_valued, site_graph
+from hte.vanishing_weights import insertions_for
 from hte.weight_book import WeightBook
 
 # ---------------------------------------------------------------------------------------------- symbolic weights
@@ -236,8 +237,11 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
                    quantities=QUANTITIES, bridge_factorisation: bool = True) -> LatticeSeries:
     """Exact series of ln Z, <M^2>_c and <M^4>_c per unit cell of `lattice` for `model`, to beta^order.
 
-    ``quantities=("lnz",)`` asks for ln Z alone: graphs with E bonds and b bridges then start at beta^(E+b)
-    (see :meth:`hte.weight_book.WeightBook.negligible`), which removes most large trees from the work.
+    Graphs whose weights vanish to this order for every quantity asked for are neither classified nor
+    diagonalised (:mod:`hte.vanishing_weights`): a graph with E bonds and b bridges starts at beta^(E + b) in
+    ln Z and at beta^(E + b - P) in <M^2>_c and <M^4>_c, P the bridges that one path (M^2) or two edge-disjoint
+    paths (M^4) of its bridge tree cover.  ``quantities=("lnz",)`` (ln Z alone) so removes most large trees from
+    the work, ``("lnz", "m2")`` (no M4) many more graphs than the default.
     ``bridge_factorisation=False`` diagonalises the graphs of E = order bonds with a bridge too (same result).
     For ln Z alone of a spin-1/2 Ising model only biconnected clusters are enumerated (:func:`star_graphs_suffice`).
     """
@@ -265,7 +269,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     t0 = time.perf_counter()
     if spec.bonds:
         if census is None:
-            census = enumerate_clusters(spec, order, workers=workers,
+            census = enumerate_clusters(spec, order, workers=workers, insertions=insertions_for(quantities),
                                         biconnected_only=star_graphs_suffice(spec, model, quantities))
         classes = census.classes
     else:
@@ -274,7 +278,7 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     site_classes = list(spec.site_classes)
     labels = list(spec.labels)
     book = WeightBook(order, cache=cache, workers=workers, progress=progress, scheduler=scheduler,
-                      lnz_only=quantities == ("lnz",), bridge_factorisation=bridge_factorisation)
+                      quantities=quantities, bridge_factorisation=bridge_factorisation)
 
     def vertex_value(class_index):
         name = site_classes[class_index]
@@ -285,8 +289,8 @@ def expand_lattice(lattice, model: SpinModel, order: int, *, cache=None, workers
     needed: dict[str, ValuedGraph] = {}
     for gc in classes:
         g = gc.graph
-        if book.lnz_only and g.n_edges + count_bridges(g) > order:
-            continue  # its ln Z weight vanishes to this order (WeightBook.negligible)
+        if book.vanishes(g):
+            continue  # its weights vanish to this order (a census given by the caller may keep such graphs)
         plan = plan_class(gc, [model.couplings[labels[col]] for _, _, col in g.edges],
                           [vertex_value(c) for c in g.vertex_colours], order)
         for vg in plan.evaluations:

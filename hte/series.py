@@ -207,7 +207,8 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
 
 def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None, couplings=None, occupation=None,
                    anisotropy=None, per: str = "site", symbolic: bool = False, workers: int = 1, cache=None,
-                   progress: bool = False, use_tables: bool = False, lnz_only: bool = False) -> HTSeries:
+                   progress: bool = False, use_tables: bool = False, lnz_only: bool = False,
+                   m4: bool = True) -> HTSeries:
     """The high-temperature series of a spin model on a lattice, in a few lines.
 
     Parameters
@@ -227,6 +228,8 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
         Answer from a shipped table in tables/ when one covers the request.
     lnz_only : bool
         Compute ln Z (and E, C, S) only; graphs whose bridges make their ln Z weight vanish are skipped.
+    m4 : bool
+        False: no M4 (the h^4 term), so that graphs whose ln Z and T chi weights both vanish are skipped.
 
     Examples
     --------
@@ -249,5 +252,5 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
         if found is not None:
             return HTSeries.from_table(found[0], order, lattice=spec, model=spin_model, per=per)
     ls = expand_lattice(spec, spin_model, order, cache=cache, workers=workers, progress=progress,
-                        quantities=("lnz",) if lnz_only else ("lnz", "m2", "m4"))
+                        quantities=("lnz",) if lnz_only else ("lnz", "m2", "m4") if m4 else ("lnz", "m2"))
     return normalise(ls, lattice=spec, model=spin_model, per=per)

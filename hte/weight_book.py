@@ -10,9 +10,9 @@ linked weight is found by subgraph subtraction,
 done in integers over common denominators.  A graph with enough bridges near the top order (E = order bonds and
 a bridge, order - 1 and two, order - 2 and a bridge between two others) is not diagonalised: its weight comes
 from rooted weights of its parts across bridges (:mod:`hte.bridge_factorisation`), and the smaller graphs'
-series come with their rooted series (:mod:`hte.rooted_series`).  When ln Z alone is wanted, weights that
-vanish exactly are skipped (:meth:`WeightBook.negligible`): those of graphs with too many bridges, and for
-spin-1/2 Ising bonds those of graphs with a cut vertex.
+series come with their rooted series (:mod:`hte.rooted_series`).  Weights that vanish exactly to this order for
+every quantity asked for are skipped (:meth:`WeightBook.negligible`): those of graphs with too many bridges
+(:mod:`hte.vanishing_weights`), and, for ln Z alone of spin-1/2 Ising bonds, those of graphs with a cut vertex.
 
 Cache rows (:mod:`hte.cache`): key "raw-v1|order=N|<valued key>" holds the JSON {"lnz": [...], "m2": [...],
 "m4": [...]} of P(G) with Fractions as strings; "rooted-v1|order=N|<valued key>" holds {"u1": [[...] per site],
@@ -32,9 +32,10 @@ from hte.canonical import key_to_graph
 from hte.clusters import subgraph_counts
 from hte.exact import QUANTITIES, cluster_cumulants
 from hte.executors import run_jobs
-from hte.graph import count_bridges, is_biconnected
+from hte.graph import ColouredGraph, is_biconnected
 from hte.rooted_series import rooted_cluster_series
 from hte.valued_graph import SubgraphCatalogue, ValuedGraph, hamiltonian_of, site_graph
+from hte.vanishing_weights import insertions_for, lowest_order
 
 CACHE_FORMAT = "raw-v1"
 ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
@@ -87,10 +88,13 @@ class WeightBook:
     """Raw cluster series and linked weights of valued graphs, backed by the persistent cache."""
 
     def __init__(self, order: int, cache=None, workers: int = 1, progress: bool = False, scheduler: str | None = None,
-                 lnz_only: bool = False, bridge_factorisation: bool = True):
+                 quantities=QUANTITIES, bridge_factorisation: bool = True):
+        """`quantities` (names of :data:`hte.exact.QUANTITIES`) are those whose weights must be right; the
+        others may come out as zeros where the asked ones vanish (:meth:`negligible`)."""
         self.order = order
-        self.lnz_only = lnz_only
-        self.factorise = bridge_factorisation and not lnz_only
+        self.lnz_only = tuple(quantities) == ("lnz",)
+        self.insertions = insertions_for(quantities)
+        self.factorise = bridge_factorisation and not self.lnz_only
         self.rooted = RootedWeights(order)
         self.rooted_wanted: set[str] = set()  # graphs whose rooted series some factorised weight uses
         self.factorised_count = 0
@@ -115,21 +119,19 @@ class WeightBook:
         self.computed = 0
         self.from_cache = 0
 
-    def negligible(self, vg: ValuedGraph) -> bool:
-        """True when only ln Z is wanted and the graph's weight vanishes to this order.
+    def vanishes(self, graph: ColouredGraph) -> bool:
+        """True when the weights of `graph` vanish to this order for every quantity asked for, by the bridge
+        rule of :mod:`hte.vanishing_weights` (a graph with E bonds and b bridges starts at beta^(E + b) in ln Z,
+        fewer bridges counting twice in <M^2>_c and <M^4>_c)."""
+        return 2 * graph.n_edges > self.order and lowest_order(graph, self.insertions) > self.order
 
-        At h = 0 a term of ln Z that uses a bridge once is a product of one-point functions <S_a> of the two
-        halves, which vanish by the global spin flip (S^z) and the U(1) symmetry (S^x, S^y) of H0; so every
-        bridge appears at least twice and a graph with E bonds and b bridges starts at beta^(E + b).
-        With spin-1/2 Ising bonds (:meth:`ising_half`) the weight of a graph with a cut vertex vanishes to all
-        orders (star-graph expansion).
-        """
-        if not self.lnz_only:
-            return False
+    def negligible(self, vg: ValuedGraph) -> bool:
+        """True when the graph's weights vanish to this order for every quantity asked for: by the bridge rule
+        (:meth:`vanishes`), or, for ln Z alone of spin-1/2 Ising bonds (:meth:`ising_half`), because it has a cut
+        vertex (star-graph expansion).  Its weights are then taken as zero for every quantity."""
         if vg.key not in self._negligible:
-            self._negligible[vg.key] = (vg.graph.n_edges + count_bridges(vg.graph) > self.order
-                                        or (vg.graph.n_edges > 0 and self.ising_half(vg)
-                                            and not is_biconnected(vg.graph)))
+            self._negligible[vg.key] = self.vanishes(vg.graph) or (
+                vg.graph.n_edges > 0 and self.ising_half(vg) and not is_biconnected(vg.graph))
         return self._negligible[vg.key]
 
     def ising_half(self, vg: ValuedGraph) -> bool:
@@ -165,7 +167,7 @@ class WeightBook:
         """Compute (or fetch from the cache) the raw series of all `graphs`, with the rooted series of those that
         the factorised graphs among them (or before them) use; commits as results arrive."""
         for vg in sorted(graphs, key=lambda vg: -vg.graph.n_edges):  # the parts of a graph have fewer bonds
-            if self.factorised(vg):
+            if not self.negligible(vg) and self.factorised(vg):
                 self.rooted_wanted.update(sub.key for sub in self.rooted.needed_for(vg))
         todo = {}
         for vg in graphs:
@@ -225,9 +227,11 @@ class WeightBook:
         self.ensure_raw(graphs)
         subgraphs, rooted = {}, {}
         for vg in graphs:
+            if self.negligible(vg):
+                continue
             if self.factorised(vg):
                 rooted.update((sub.key, sub) for sub in self.rooted.needed_for(vg))
-            elif vg.graph.n_edges > 1 and not self.negligible(vg):
+            elif vg.graph.n_edges > 1:
                 for sub_key in self._subgraphs(vg):
                     if sub_key not in self.raw and sub_key not in self._factorised_weights:
                         subgraphs[sub_key] = self.valued[sub_key]
@@ -239,7 +243,7 @@ class WeightBook:
         if subgraphs:
             self.ensure_weights(list(subgraphs.values()))
         for vg in graphs:
-            if self.factorised(vg) and vg.key not in self._factorised_weights:
+            if not self.negligible(vg) and self.factorised(vg) and vg.key not in self._factorised_weights:
                 weight = factorised_weight(vg, self.order, self.rooted)
                 self._factorised_weights[vg.key] = weight
                 self._widen(weight)

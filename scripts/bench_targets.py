@@ -5,7 +5,7 @@ Usage: .venv/bin/python scripts/bench_targets.py [TARGET ...] [--budget SECONDS]
 
 A TARGET is one of the names in TARGETS below (default: all).  For each target the orders are run upwards,
 each in a fresh child process with an empty temporary HTE_CACHE_DIR and no shipped tables (ln Z, T chi and M4,
-per site).  Before an order is started its time is projected from the last two measured orders (the growth
+per site; a target may set couplings, occupations and m4=False).  Before an order is started its time is projected from the last two measured orders (the growth
 factor t(n) / t(n-1)); the target stops when the projection would overrun its budget (default 1800 s of wall
 time per target), and a run that overruns anyway is stopped and recorded as a lower bound.  The report gives,
 per target, the wall time and peak memory (child and its workers) of every order, the last growth factor and
@@ -53,6 +53,9 @@ TARGETS = {
                         table=False),
     "ladder3": dict(lattice="ladder-unequal-legs", spin="1/2", symbolic=True, orders=[9, 10, 11, 12, 13], target=13,
                     table=False),
+    # symbolic J1, J2, Jd and interlayer occupation p; ln Z and T chi (no M4), as the issue's layered target asks
+    "layered4": dict(lattice="kagome-layered", spin="1/2", symbolic=True, orders=list(range(4, 11)), target=10,
+                     table=False, couplings={"Jperp": "0"}, occupation={"interlayer": "p"}, m4=False),
 }
 
 CHILD = r"""
@@ -68,7 +71,8 @@ else:
     start = time.perf_counter()
     with WeightCache() as cache:
         series = compute_series(target["lattice"], order=order, spin=target["spin"], symbolic=target["symbolic"],
-                                per="site", cache=cache, workers=workers)
+                                couplings=target.get("couplings"), occupation=target.get("occupation"),
+                                m4=target.get("m4", True), per="site", cache=cache, workers=workers)
     result = {"wall": time.perf_counter() - start, **series.stats}
 peak = max(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)
 result["peak_mib"] = peak / 1024

@@ -47,6 +47,9 @@ def add_series_arguments(parser) -> None:
     parser.add_argument("--lnz-only", action="store_true",
                         help="compute ln Z (and E, C, S) only: graphs whose bridges make them vanish are skipped, "
                              "much faster at high order")
+    parser.add_argument("--no-m4", action="store_true",
+                        help="compute ln Z and T*chi (and E, C, S) but not M4 (the h^4 term): graphs whose bridges "
+                             "make both vanish are skipped, faster at high order")
     parser.add_argument("--no-tables", action="store_true", help="ignore the shipped tables in tables/")
     parser.add_argument("--no-cache", action="store_true", help="do not read or write the weight cache")
     parser.add_argument("--force", action="store_true",
@@ -88,6 +91,7 @@ def series_from_args(args, *, default_order: int | None = None):
     workers = args.workers or default_workers()
     if workers < 1:
         raise ParameterError(f"--workers {workers}: use at least 1")
+    quantities = quantities_from_args(args)
     if _worth_estimating(model, order):
         from hte.estimate import check_memory, estimate_run
 
@@ -95,8 +99,8 @@ def series_from_args(args, *, default_order: int | None = None):
 
         active = spec.without_labels([l for l, c in model.couplings.items() if c.is_zero])
         active = active.without_classes([c for c, p in model.occupation.items() if p == 0])
-        estimate = estimate_run(active, model, order, workers, lnz_only=args.lnz_only,
-                                biconnected_only=star_graphs_suffice(active, model, ("lnz",) if args.lnz_only else ()))
+        estimate = estimate_run(active, model, order, workers, quantities=quantities,
+                                biconnected_only=star_graphs_suffice(active, model, quantities))
         print(f"# {estimate.describe()}", file=sys.stderr)
         if not args.force:
             check_memory(estimate, workers)
@@ -105,16 +109,24 @@ def series_from_args(args, *, default_order: int | None = None):
         from hte.cache import WeightCache
 
         cache = WeightCache()
-    from hte.exact import QUANTITIES
     from hte.expansion import expand_lattice
 
     try:
         ls = expand_lattice(spec, model, order, cache=cache, workers=workers, progress=sys.stderr.isatty(),
-                            scheduler=args.scheduler, quantities=("lnz",) if args.lnz_only else QUANTITIES)
+                            scheduler=args.scheduler, quantities=quantities)
     finally:
         if cache is not None:
             cache.close()
     return normalise(ls, lattice=spec, model=model, per=args.per)
+
+
+def quantities_from_args(args) -> tuple[str, ...]:
+    """The additive quantities (:data:`hte.exact.QUANTITIES`) that --lnz-only / --no-m4 leave."""
+    from hte.exact import QUANTITIES
+
+    if args.lnz_only:
+        return ("lnz",)
+    return ("lnz", "m2") if args.no_m4 else QUANTITIES
 
 
 def _worth_estimating(model, order: int) -> bool:
