@@ -138,7 +138,8 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     bound misses are kept and left to the caller.  The search also skips every cluster with L degree-1 sites and
     E + ceil((L - k) / 2) > max_bonds: in any larger cluster each of those sites either keeps degree 1, and so
     ends a bridge that at most k of them can leave used once, or takes a new bond, and a bond serves two of them
-    at most.
+    at most.  One bond below max_bonds with L > k, the last bond is picked directly among those that join a
+    degree-1 site to another site of the cluster and leave at most k such sites.
 
     With ``biconnected_only`` only the biconnected clusters (a single bond, or no cut vertex) are classified and
     counted, and the search skips every cluster that cannot grow into one within max_bonds bonds: one with a
@@ -177,7 +178,8 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
         if d > max_deg:
             max_deg = d
     reached = np.zeros(n_bonds, np.bool_)
-    available = np.zeros(n_bonds, np.bool_)  # star mode: in the untried list of the current level
+    available = np.zeros(n_bonds, np.bool_)  # star and insertion modes: in the untried list of the current level
+    track = star is not None or insertions >= 0
     local = -np.ones(n_sites, np.int64)
     refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
@@ -217,7 +219,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             if seg_pos[d] == seg_end[d]:
                 for k in range(seg_new[d], seg_end[d]):
                     reached[buf[k]] = False
-                if star is not None:
+                if track:
                     for k in range(seg_new[d], seg_end[d]):
                         available[buf[k]] = False
                     if d > 0:
@@ -236,7 +238,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 continue
             b = buf[seg_pos[d]]
             seg_pos[d] += 1
-            if star is not None:
+            if track:
                 available[b] = False
             cluster[size] = b
             size += 1
@@ -249,12 +251,37 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             record = True
             grow = size < max_bonds
             leaves = 0
-            if star is not None or insertions >= 0:
+            if track:
                 for k in range(nv):
                     if refc[verts[k]] == 1:
                         leaves += 1
             if insertions >= 0 and size + (leaves - insertions + 1) // 2 > max_bonds:
                 grow = False
+            if insertions >= 0 and grow and size == max_bonds - 1 and leaves > insertions:
+                # every cluster one bond larger keeps more than k degree-1 sites, hence b - P_k > 0, unless the
+                # last bond joins a degree-1 site to the cluster: pick those bonds directly
+                grow = False
+                for k in range(nv):
+                    s = verts[k]
+                    if refc[s] != 1:
+                        continue
+                    for p in range(inc_ptr[s], inc_ptr[s + 1]):
+                        f = inc_bond[p]
+                        t = bond_v[f] if bond_u[f] == s else bond_u[f]
+                        if refc[t] == 0 or (refc[t] == 1 and local[t] < k):  # a new site; a pair met from t
+                            continue
+                        if not (available[f] or (f > root and not reached[f])):
+                            continue
+                        if leaves - 1 - (refc[t] == 1) > insertions:
+                            continue
+                        cluster[size] = f
+                        _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                        n_classes = _classify(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
+                                              counts, class_hash, slots, n_classes)
+                        if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+                            certs, lengths, counts, class_hash, slots = _with_room(
+                                certs, lengths, counts, class_hash, slots, n_classes)
+                        per_size[size + 1] += 1
             if star is not None:
                 if leaves > 0:
                     record = size == 1
@@ -319,7 +346,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                         f = inc_bond[p]
                         if f > root and not reached[f]:
                             reached[f] = True
-                            if star is not None:
+                            if track:
                                 available[f] = True
                             buf[k] = f
                             k += 1
