@@ -161,16 +161,16 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     per_size : int64[max_bonds + 1]
         Number of clusters with n bonds.
     """
-    # The mode goes in as None (all clusters) or True, so that numba compiles each mode on its own and prunes the
-    # other's branches: the full search runs as fast as without the biconnected rules.
+    # The modes go in as None (off) or a value, so that numba compiles each combination on its own and prunes the
+    # branches of the modes that are off: the full search runs as fast as without the other rules.
     return _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
-                      True if biconnected_only else None, -1 if insertions is None else int(insertions))
+                      True if biconnected_only else None, None if insertions is None else int(insertions))
 
 
 @njit(cache=True)
 def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites, star, insertions):
     """:func:`enumerate_bond_clusters`, with ``star`` None for all clusters and True for the biconnected ones,
-    ``insertions`` -1 for no rule on vanishing weights."""
+    ``insertions`` None for no rule on vanishing weights."""
     n_bonds = bond_u.shape[0]
     max_deg = 0
     for s in range(n_sites):
@@ -179,7 +179,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             max_deg = d
     reached = np.zeros(n_bonds, np.bool_)
     available = np.zeros(n_bonds, np.bool_)  # star and insertion modes: in the untried list of the current level
-    track = star is not None or insertions >= 0
+    track = star is not None or insertions is not None
     local = -np.ones(n_sites, np.int64)
     refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
@@ -255,33 +255,34 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 for k in range(nv):
                     if refc[verts[k]] == 1:
                         leaves += 1
-            if insertions >= 0 and size + (leaves - insertions + 1) // 2 > max_bonds:
-                grow = False
-            if insertions >= 0 and grow and size == max_bonds - 1 and leaves > insertions:
-                # every cluster one bond larger keeps more than k degree-1 sites, hence b - P_k > 0, unless the
-                # last bond joins a degree-1 site to the cluster: pick those bonds directly
-                grow = False
-                for k in range(nv):
-                    s = verts[k]
-                    if refc[s] != 1:
-                        continue
-                    for p in range(inc_ptr[s], inc_ptr[s + 1]):
-                        f = inc_bond[p]
-                        t = bond_v[f] if bond_u[f] == s else bond_u[f]
-                        if refc[t] == 0 or (refc[t] == 1 and local[t] < k):  # a new site; a pair met from t
+            if insertions is not None:
+                if size + (leaves - insertions + 1) // 2 > max_bonds:
+                    grow = False
+                if grow and size == max_bonds - 1 and leaves > insertions:
+                    # every cluster one bond larger keeps more than k degree-1 sites, hence b - P_k > 0, unless the
+                    # last bond joins a degree-1 site to the cluster: pick those bonds directly
+                    grow = False
+                    for k in range(nv):
+                        s = verts[k]
+                        if refc[s] != 1:
                             continue
-                        if not (available[f] or (f > root and not reached[f])):
-                            continue
-                        if leaves - 1 - (refc[t] == 1) > insertions:
-                            continue
-                        cluster[size] = f
-                        _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                        n_classes = _classify(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
-                                              counts, class_hash, slots, n_classes)
-                        if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-                            certs, lengths, counts, class_hash, slots = _with_room(
-                                certs, lengths, counts, class_hash, slots, n_classes)
-                        per_size[size + 1] += 1
+                        for p in range(inc_ptr[s], inc_ptr[s + 1]):
+                            f = inc_bond[p]
+                            t = bond_v[f] if bond_u[f] == s else bond_u[f]
+                            if refc[t] == 0 or (refc[t] == 1 and local[t] < k):  # a new site; a pair met from t
+                                continue
+                            if not (available[f] or (f > root and not reached[f])):
+                                continue
+                            if leaves - 1 - (refc[t] == 1) > insertions:
+                                continue
+                            cluster[size] = f
+                            _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                            n_classes = _classify(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
+                                                  counts, class_hash, slots, n_classes)
+                            if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+                                certs, lengths, counts, class_hash, slots = _with_room(
+                                    certs, lengths, counts, class_hash, slots, n_classes)
+                            per_size[size + 1] += 1
             if star is not None:
                 if leaves > 0:
                     record = size == 1
@@ -325,8 +326,10 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 if star is not None:
                     if size > 1:
                         record = _is_biconnected(nv, size, eu, ev, scratch)
-                elif insertions >= 0 and 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
-                    record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves, insertions) <= max_bonds
+                elif insertions is not None:
+                    if 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
+                        record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves,
+                                                                 insertions) <= max_bonds
             if record:
                 n_classes = _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash,
                                       slots, n_classes)
