@@ -2,7 +2,8 @@
 
 The estimate is deliberately simple and says so: the cluster and graph-class counts are enumerated exactly
 up to the size where that takes about a second, then extrapolated with the last measured growth factors;
-the enumeration time uses the measured time per cluster; the kernel time of a cluster is a measured overhead
+the enumeration time grows from the last probe's by the larger of the growth factors of the clusters kept and
+of the probe's time (the census also walks clusters it drops); the kernel time of a cluster is a measured overhead
 plus a measured unit times the square of its largest S^z sector (:func:`kernel_cost_model`); the memory is
 the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
 blocks) per worker.  Clusters that the run never diagonalises are left out of both: trees (every bond a
@@ -26,6 +27,7 @@ from hte.exact import QUANTITIES
 from hte.vanishing_weights import insertions_for
 
 _PROBE_CLUSTERS = 200_000
+_STEADY_S = 0.05  # probe censuses shorter than this are too noisy for a time growth factor
 _PROBE_SECTOR = 2000  # the kernel-cost probe's largest sector (about 0.1-0.5 s at orders 10-18)
 _BLOCK_BYTES = 3 * 2**20 * 8  # the kernel's propagation buffers (hte/exact.py)
 
@@ -123,17 +125,20 @@ def estimate_run(spec, model, order: int, workers: int = 1, quantities=QUANTITIE
         classes.append(len(census.classes))
         if counts[-1] > _PROBE_CLUSTERS:
             break
-    per_cluster = seconds[-1] / max(counts[-1], 1)
     growth = counts[-1] / counts[-2] if len(counts) > 1 and counts[-2] else 1.0
     class_growth = classes[-1] / classes[-2] if len(classes) > 1 and classes[-2] else 1.0
+    # the census walks clusters it does not keep (hte.vanishing_weights), and their number grows faster than the
+    # number kept: the time grows by the larger of the two measured factors
+    time_growth = seconds[-1] / seconds[-2] if len(seconds) > 1 and seconds[-2] > _STEADY_S else growth
     total, n_classes, enum_s = counts[-1], classes[-1], seconds[-1]
-    last_count, last_classes = counts[-1], classes[-1]
+    last_count, last_classes, last_s = counts[-1], classes[-1], seconds[-1]
     for _ in range(n + 1, order + 1):
         last_count *= growth
         last_classes *= class_growth
+        last_s *= max(growth, time_growth)
         total += last_count
         n_classes += last_classes
-        enum_s += last_count * per_cluster
+        enum_s += last_s
     # kernel: time real classes of the largest affordable size, scale by the square of the largest sector
     diagonal = all(c.xy == 0 for label, c in model.couplings.items() if label in spec.labels)
     kernel_s = _kernel_seconds(census, order, twice_spin, class_growth, lnz_only, diagonal)
