@@ -19,6 +19,7 @@ import numpy as np
 from numba import njit
 
 from hte.canonical import canonical_into, new_workspace, workspace_inputs, workspace_result
+from hte.low_link import low_links
 
 
 @njit(cache=True, inline="always")
@@ -125,6 +126,18 @@ def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
     if 2 * n_classes > slots.shape[0]:
         slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
     return certs, lengths, counts, class_hash, slots
+
+
+@njit(cache=True, inline="always")
+def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes, per_size):
+    """Count the cluster of `size` bonds whose local edges are in the workspace: into its graph class
+    (:func:`_classify`), keeping room for the next class, and into per_size; returns the class table."""
+    n_classes = _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots,
+                          n_classes)
+    if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
+    per_size[size] += 1
+    return n_classes, certs, lengths, counts, class_hash, slots
 
 
 def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
@@ -277,12 +290,9 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                                 continue
                             cluster[size] = f
                             _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                            n_classes = _classify(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
-                                                  counts, class_hash, slots, n_classes)
-                            if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-                                certs, lengths, counts, class_hash, slots = _with_room(
-                                    certs, lengths, counts, class_hash, slots, n_classes)
-                            per_size[size + 1] += 1
+                            n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                                ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
+                                slots, n_classes, per_size)
             if star is not None:
                 if leaves > 0:
                     record = size == 1
@@ -315,12 +325,9 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                             cluster[size] = f
                             _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                             if _is_biconnected(nv, size + 1, eu, ev, scratch):
-                                n_classes = _classify(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
-                                                      counts, class_hash, slots, n_classes)
-                                if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-                                    certs, lengths, counts, class_hash, slots = _with_room(
-                                        certs, lengths, counts, class_hash, slots, n_classes)
-                                per_size[size + 1] += 1
+                                n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                                    ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
+                                    slots, n_classes, per_size)
             if record:
                 _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                 if star is not None:
@@ -331,12 +338,9 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                         record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves,
                                                                  insertions) <= max_bonds
             if record:
-                n_classes = _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash,
-                                      slots, n_classes)
-                if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-                    certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots,
-                                                                           n_classes)
-                per_size[size] += 1
+                n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                    ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes,
+                    per_size)
             if grow:
                 ns = seg_end[d]
                 k = ns
@@ -421,61 +425,19 @@ def _uncovered_bridges_bound(nv, ne, verts, refc, leaves, insertions):
 @njit(cache=True)
 def _is_biconnected(nv, ne, eu, ev, scratch):
     """True if the connected graph on vertices 0..nv-1 with edges (eu[e], ev[e]), e < ne, has no cut vertex
-    (Tarjan's low-point depth-first search; parallel edges are told apart by their edge ids).  scratch is
-    int64[6, >= max(nv + 1, 2 ne)]."""
-    ptr, adj, disc, low, parent_edge, cursor = scratch[0], scratch[1], scratch[2], scratch[3], scratch[4], scratch[5]
-    for x in range(nv + 1):
-        ptr[x] = 0
-    for e in range(ne):
-        ptr[eu[e] + 1] += 1
-        ptr[ev[e] + 1] += 1
-    for x in range(nv):
-        ptr[x + 1] += ptr[x]
-    for x in range(nv):
-        cursor[x] = ptr[x]
-    for e in range(ne):
-        adj[cursor[eu[e]]] = e
-        cursor[eu[e]] += 1
-        adj[cursor[ev[e]]] = e
-        cursor[ev[e]] += 1
-    for x in range(nv):
-        disc[x] = -1
-        cursor[x] = ptr[x]
-    # the depth-first path is kept implicitly: parent_edge[x] leads back from x towards vertex 0
-    disc[0] = 0
-    low[0] = 0
-    parent_edge[0] = -1
-    clock = 1
+    (Tarjan's low points, :func:`hte.low_link.low_links`).  scratch is int64[6, >= max(nv + 1, 2 ne)]."""
+    if low_links(nv, ne, eu, ev, scratch) != nv:
+        return False
+    disc, low, parent_edge = scratch[2], scratch[3], scratch[4]
     root_children = 0
-    x = 0
-    while True:
-        if cursor[x] < ptr[x + 1]:
-            e = adj[cursor[x]]
-            cursor[x] += 1
-            if e == parent_edge[x]:
-                continue
-            y = ev[e] if eu[e] == x else eu[e]
-            if disc[y] < 0:
-                disc[y] = clock
-                low[y] = clock
-                clock += 1
-                parent_edge[y] = e
-                if x == 0:
-                    root_children += 1
-                x = y
-            elif disc[y] < low[x]:
-                low[x] = disc[y]
-        else:
-            if x == 0:
-                break
-            e = parent_edge[x]
-            p = ev[e] if eu[e] == x else eu[e]
-            if low[x] < low[p]:
-                low[p] = low[x]
-            if p != 0 and low[x] >= disc[p]:
-                return False
-            x = p
-    return root_children == 1 and clock == nv
+    for x in range(1, nv):
+        e = parent_edge[x]
+        p = ev[e] if eu[e] == x else eu[e]
+        if p == 0:
+            root_children += 1
+        elif low[x] >= disc[p]:
+            return False
+    return root_children == 1
 
 
 @njit(cache=True)

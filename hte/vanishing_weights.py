@@ -29,6 +29,7 @@ import numpy as np
 from numba import njit
 
 from hte.graph import ColouredGraph
+from hte.low_link import low_links
 
 INSERTIONS = {"lnz": 0, "m2": 2, "m4": 4}
 """Number of magnetisation insertions of each additive quantity (keys of :data:`hte.exact.QUANTITIES`)."""
@@ -63,61 +64,20 @@ def lowest_order(graph: ColouredGraph, insertions: int) -> int:
 def lowest_order_of_edges(nv, ne, eu, ev, insertions, scratch):
     """:func:`lowest_order` of the connected graph on vertices 0..nv-1 with edges (eu[e], ev[e]), e < ne.
 
-    Bridges by Tarjan's low-point search, the bridge tree by union-find over the other edges, then a dynamic
-    programme over the tree: best[x, j] is the most T-join edges below node x with j nodes of T below it
-    (j <= insertions), an edge counting when an odd number of T lies beyond it.  scratch is from
+    Bridges from Tarjan's low points (:func:`hte.low_link.low_links`), the bridge tree by union-find over the
+    other edges, then a dynamic programme over the tree: best[x, j] is the most T-join edges below node x with
+    j nodes of T below it (j <= insertions), an edge counting when an odd number of T lies beyond it.  scratch is from
     :func:`scratch_for`."""
-    ptr, adj, disc, low, parent_edge, cursor = scratch[0], scratch[1], scratch[2], scratch[3], scratch[4], scratch[5]
+    low_links(nv, ne, eu, ev, scratch)
+    disc, low, parent_edge, cursor = scratch[2], scratch[3], scratch[4], scratch[5]
     bridge, comp = scratch[6], scratch[7]
-    for x in range(nv + 1):
-        ptr[x] = 0
     for e in range(ne):
-        ptr[eu[e] + 1] += 1
-        ptr[ev[e] + 1] += 1
-    for x in range(nv):
-        ptr[x + 1] += ptr[x]
-    for x in range(nv):
-        cursor[x] = ptr[x]
-    for e in range(ne):
-        adj[cursor[eu[e]]] = e
-        cursor[eu[e]] += 1
-        adj[cursor[ev[e]]] = e
-        cursor[ev[e]] += 1
         bridge[e] = 0
-    for x in range(nv):
-        disc[x] = -1
-        cursor[x] = ptr[x]
-    # Tarjan: the tree edge into y is a bridge when nothing below y reaches above y
-    disc[0] = 0
-    low[0] = 0
-    parent_edge[0] = -1
-    clock = 1
-    x = 0
-    while True:
-        if cursor[x] < ptr[x + 1]:
-            e = adj[cursor[x]]
-            cursor[x] += 1
-            if e == parent_edge[x]:
-                continue
-            y = ev[e] if eu[e] == x else eu[e]
-            if disc[y] < 0:
-                disc[y] = clock
-                low[y] = clock
-                clock += 1
-                parent_edge[y] = e
-                x = y
-            elif disc[y] < low[x]:
-                low[x] = disc[y]
-        else:
-            if x == 0:
-                break
-            e = parent_edge[x]
-            p = ev[e] if eu[e] == x else eu[e]
-            if low[x] < low[p]:
-                low[p] = low[x]
-            if low[x] > disc[p]:
-                bridge[e] = 1
-            x = p
+    for x in range(1, nv):  # the tree edge into x is a bridge when nothing below x reaches above it
+        e = parent_edge[x]
+        p = ev[e] if eu[e] == x else eu[e]
+        if low[x] > disc[p]:
+            bridge[e] = 1
     n_bridges = 0
     for e in range(ne):
         n_bridges += bridge[e]
