@@ -252,5 +252,12 @@ def compute_series(lattice, *, order: int, model: str = "heisenberg", spin=None,
         if found is not None:
             return HTSeries.from_table(found[0], order, lattice=spec, model=spin_model, per=per)
     ls = expand_lattice(spec, spin_model, order, cache=cache, workers=workers, progress=progress,
-                        quantities=("lnz",) if lnz_only else ("lnz", "m2", "m4") if m4 else ("lnz", "m2"))
+                        quantities=quantities_for(lnz_only, m4))
     return normalise(ls, lattice=spec, model=spin_model, per=per)
+
+
+def quantities_for(lnz_only: bool = False, m4: bool = True) -> tuple[str, ...]:
+    """The additive quantities (names of :data:`hte.exact.QUANTITIES`) that ``lnz_only`` and ``m4`` ask for."""
+    if lnz_only:
+        return ("lnz",)
+    return ("lnz", "m2", "m4") if m4 else ("lnz", "m2")

@@ -67,7 +67,7 @@ def series_from_args(args, *, default_order: int | None = None):
     from hte.errors import ParameterError
     from hte.lattice_file import load_lattice
     from hte.models import build_model
-    from hte.series import HTSeries, normalise
+    from hte.series import HTSeries, normalise, quantities_for
     from hte.tables import find_table
 
     order = args.order if args.order is not None else default_order
@@ -91,7 +91,7 @@ def series_from_args(args, *, default_order: int | None = None):
     workers = args.workers or default_workers()
     if workers < 1:
         raise ParameterError(f"--workers {workers}: use at least 1")
-    quantities = quantities_from_args(args)
+    quantities = quantities_for(lnz_only=args.lnz_only, m4=not args.no_m4)
     if _worth_estimating(model, order):
         from hte.estimate import check_memory, estimate_run
 
@@ -118,15 +118,6 @@ def series_from_args(args, *, default_order: int | None = None):
         if cache is not None:
             cache.close()
     return normalise(ls, lattice=spec, model=model, per=args.per)
-
-
-def quantities_from_args(args) -> tuple[str, ...]:
-    """The additive quantities (:data:`hte.exact.QUANTITIES`) that --lnz-only / --no-m4 leave."""
-    from hte.exact import QUANTITIES
-
-    if args.lnz_only:
-        return ("lnz",)
-    return ("lnz", "m2") if args.no_m4 else QUANTITIES
 
 
 def _worth_estimating(model, order: int) -> bool:
