@@ -20,6 +20,15 @@ from numba import njit
 
 from hte.canonical import canonical_into, new_workspace, workspace_inputs, workspace_result
 from hte.low_link import low_links
+from hte.vanishing_weights import lowest_order_of_edges, scratch_for
+
+
+@njit(cache=True, inline="always")
+def _splitmix(x):
+    """The splitmix64 finaliser of the uint64 x: a fixed, well-spread 64-bit hash."""
+    x = (x ^ (x >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+    x = (x ^ (x >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    return x ^ (x >> np.uint64(31))
 
 
 @njit(cache=True, inline="always")
@@ -28,10 +37,7 @@ def _certificate_hash(cert, length):
     h = np.uint64(length)
     for i in range(length):
         if cert[i] != 0:
-            x = np.uint64(i) * np.uint64(1000003) + np.uint64(cert[i])
-            x = (x ^ (x >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
-            x = (x ^ (x >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
-            h += x ^ (x >> np.uint64(31))
+            h += _splitmix(np.uint64(i) * np.uint64(1000003) + np.uint64(cert[i]))
     return h
 
 
@@ -99,23 +105,21 @@ def _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec):
 
 
 @njit(cache=True, inline="always")
-def _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes):
-    """Count the cluster whose local edges are in the workspace into its graph class, adding the class if new
-    (the table must have room for one more: :func:`_with_room`); returns the number of classes."""
-    for k in range(nv):
-        vcol[k] = site_col[verts[k]]
+def _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots, n_classes):
+    """Graph class of the graph written into the workspace inputs (vertex colours and local edges), added with
+    count 0 if new (the table must have room for one more: :func:`_with_room`); returns (class, number of
+    classes).  The canonical labelling stays in the workspace until the next call."""
     length = canonical_into(ws, nv, size)
     h = _certificate_hash(best, length)
     slot = _lookup(slots, class_hash, certs, lengths, best, length, h)
     if slots[slot] >= 0:
-        counts[slots[slot]] += 1
-        return n_classes
+        return slots[slot], n_classes
     certs[n_classes, :length] = best[:length]
     lengths[n_classes] = length
-    counts[n_classes] = 1
+    counts[n_classes] = 0
     class_hash[n_classes] = h
     slots[slot] = n_classes
-    return n_classes + 1
+    return n_classes, n_classes + 1
 
 
 @njit(cache=True)
@@ -129,14 +133,137 @@ def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
 
 
 @njit(cache=True, inline="always")
-def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes, per_size):
-    """Count the cluster of `size` bonds whose local edges are in the workspace: into its graph class
-    (:func:`_classify`), keeping room for the next class, and into per_size; returns the class table."""
-    n_classes = _classify(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots,
-                          n_classes)
+def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes, per_size,
+           weight):
+    """Count the cluster of `size` bonds whose local edges are in the workspace `weight` times: into its graph
+    class (:func:`_class_index`), keeping room for the next class, and into per_size; returns the class and the
+    class table."""
+    for k in range(nv):
+        vcol[k] = site_col[verts[k]]
+    k, n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots, n_classes)
+    counts[k] += weight
+    per_size[size] += weight
     if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
         certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
-    per_size[size] += 1
+    return k, n_classes, certs, lengths, counts, class_hash, slots
+
+
+_KEY_BITS = 6  # bits of each label and of the bond colour in an extension key (clusters of <= 62 sites)
+
+
+@njit(cache=True, inline="always")
+def _leaves_after(f, refc, bond_u, bond_v, leaves):
+    """Degree-1 sites of the current cluster (which has `leaves` of them) once bond f, at one of its sites, is
+    added."""
+    u = bond_u[f]
+    v = bond_v[f]
+    if refc[u] == 0 or refc[v] == 0:  # one new site, a new degree-1 site
+        return leaves + 1 - (refc[u] == 1) - (refc[v] == 1)
+    return leaves - (refc[u] == 1) - (refc[v] == 1)
+
+
+@njit(cache=True, inline="always")
+def _extension_key(f, parent, labels, local, refc, bond_u, bond_v, bond_col, site_col, nv):
+    """Key of the cluster one bond larger than the current one (of class `parent`, canonical labelling `labels`)
+    that bond f makes: (parent, a, c, colour of f) packed, where f joins the sites of canonical labels a < c,
+    or joins a to a new site and c = nv + colour of that site."""
+    u = bond_u[f]
+    v = bond_v[f]
+    if refc[u] == 0:
+        u, v = v, u
+    a = labels[local[u]]
+    if refc[v] > 0:
+        c = labels[local[v]]
+        if c < a:
+            a, c = c, a
+    else:
+        c = nv + site_col[v]
+    return (((parent << _KEY_BITS | a) << _KEY_BITS) | c) << _KEY_BITS | bond_col[f]
+
+
+@njit(cache=True, inline="always")
+def _count_extension(key, ext_keys, ext_counts, n_extensions):
+    """Count `key` once in the open-addressing table (ext_keys, ext_counts) holding n_extensions keys; returns
+    the number of keys and the table, grown to stay at most half full."""
+    mask = ext_keys.shape[0] - 1
+    slot = np.int64(_splitmix(np.uint64(key)) & np.uint64(mask))
+    while ext_keys[slot] >= 0 and ext_keys[slot] != key:
+        slot = (slot + 1) & mask
+    ext_counts[slot] += 1
+    if ext_keys[slot] < 0:
+        ext_keys[slot] = key
+        n_extensions += 1
+        if 2 * n_extensions > ext_keys.shape[0]:
+            ext_keys, ext_counts = _grown_extensions(ext_keys, ext_counts)
+    return n_extensions, ext_keys, ext_counts
+
+
+@njit(cache=True)
+def _grown_extensions(ext_keys, ext_counts):
+    """The extension table rehashed into twice the slots."""
+    capacity = 2 * ext_keys.shape[0]
+    keys = -np.ones(capacity, np.int64)
+    counts = np.zeros(capacity, np.int64)
+    for old in range(ext_keys.shape[0]):
+        key = ext_keys[old]
+        if key < 0:
+            continue
+        slot = np.int64(_splitmix(np.uint64(key)) & np.uint64(capacity - 1))
+        while keys[slot] >= 0:
+            slot = (slot + 1) & (capacity - 1)
+        keys[slot] = key
+        counts[slot] = ext_counts[old]
+    return keys, counts
+
+
+@njit(cache=True)
+def _tally_extensions(ext_keys, ext_counts, max_bonds, insertions, ws, certs, lengths, counts, class_hash, slots,
+                      n_classes, per_size):
+    """Count the clusters of the extension table into their graph classes: rebuild each key's graph from the
+    certificate of its smaller cluster and the added bond, drop it when its weights vanish to beta^max_bonds
+    (insertions >= 0: :func:`hte.vanishing_weights.lowest_order_of_edges`), else classify it once with the
+    key's count.  Returns the class table."""
+    vcol, eu, ev, ec = workspace_inputs(ws)
+    best, _ = workspace_result(ws)
+    scratch = scratch_for(max_bonds + 1, max_bonds)
+    field = (1 << _KEY_BITS) - 1
+    for slot in range(ext_keys.shape[0]):
+        key = ext_keys[slot]
+        if key < 0:
+            continue
+        colour = key & field
+        c = (key >> _KEY_BITS) & field
+        a = (key >> 2 * _KEY_BITS) & field
+        cert = certs[key >> 3 * _KEY_BITS]
+        n = cert[0]
+        for i in range(n):
+            vcol[i] = cert[1 + i]
+        m = 0
+        pos = 1 + n
+        for i in range(n):
+            for j in range(i + 1, n):
+                if cert[pos] != 0:
+                    eu[m] = i
+                    ev[m] = j
+                    ec[m] = cert[pos] - 1
+                    m += 1
+                pos += 1
+        nv = n
+        if c >= n:  # a new site, of colour c - n
+            vcol[n] = c - n
+            c = n
+            nv = n + 1
+        eu[m] = a
+        ev[m] = c
+        ec[m] = colour
+        m += 1
+        if insertions >= 0 and lowest_order_of_edges(nv, m, eu, ev, insertions, scratch) > max_bonds:
+            continue
+        k, n_classes = _class_index(ws, best, nv, m, certs, lengths, counts, class_hash, slots, n_classes)
+        counts[k] += ext_counts[slot]
+        per_size[m] += ext_counts[slot]
+        if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+            certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
     return n_classes, certs, lengths, counts, class_hash, slots
 
 
@@ -191,8 +318,9 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
         if d > max_deg:
             max_deg = d
     reached = np.zeros(n_bonds, np.bool_)
-    available = np.zeros(n_bonds, np.bool_)  # star and insertion modes: in the untried list of the current level
-    track = star is not None or insertions is not None
+    available = np.zeros(n_bonds, np.bool_)  # star mode: in the untried list of the current level
+    track = star is not None
+    count_leaves = star is not None or insertions is not None
     local = -np.ones(n_sites, np.int64)
     refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
@@ -204,8 +332,16 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
     seg_new = np.empty(max_bonds + 2, np.int64)
     ws = new_workspace(max_bonds + 1, max_bonds)
     vcol, eu, ev, ec = workspace_inputs(ws)
-    best, _ = workspace_result(ws)
+    best, labels = workspace_result(ws)
     scratch = np.empty((6, 2 * max_bonds + 3), np.int64)  # for _is_biconnected
+    # the top layer: counts of clusters of max_bonds bonds by _extension_key, an open-addressing table
+    ext_keys = -np.ones(1024, np.int64)
+    ext_counts = np.zeros(1024, np.int64)
+    n_extensions = 0
+    cand = np.empty(buf.shape[0], np.int64)  # the bonds that may make a cluster of the top layer from this one
+    max_top_leaves = 1 << 30  # degree-1 sites a cluster of max_bonds bonds may have and be counted
+    if insertions is not None:
+        max_top_leaves = insertions
 
     # the graph classes: an open-addressing hash table of class indices, kept at most half full
     n_vertices = max_bonds + 1
@@ -264,35 +400,12 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             record = True
             grow = size < max_bonds
             leaves = 0
-            if track:
+            if count_leaves:
                 for k in range(nv):
                     if refc[verts[k]] == 1:
                         leaves += 1
-            if insertions is not None:
-                if size + (leaves - insertions + 1) // 2 > max_bonds:
-                    grow = False
-                if grow and size == max_bonds - 1 and leaves > insertions:
-                    # every cluster one bond larger keeps more than k degree-1 sites, hence b - P_k > 0, unless the
-                    # last bond joins a degree-1 site to the cluster: pick those bonds directly
-                    grow = False
-                    for k in range(nv):
-                        s = verts[k]
-                        if refc[s] != 1:
-                            continue
-                        for p in range(inc_ptr[s], inc_ptr[s + 1]):
-                            f = inc_bond[p]
-                            t = bond_v[f] if bond_u[f] == s else bond_u[f]
-                            if refc[t] == 0 or (refc[t] == 1 and local[t] < k):  # a new site; a pair met from t
-                                continue
-                            if not (available[f] or (f > root and not reached[f])):
-                                continue
-                            if leaves - 1 - (refc[t] == 1) > insertions:
-                                continue
-                            cluster[size] = f
-                            _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                            n_classes, certs, lengths, counts, class_hash, slots = _tally(
-                                ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
-                                slots, n_classes, per_size)
+            if insertions is not None and size + (leaves - insertions + 1) // 2 > max_bonds:
+                grow = False
             if star is not None:
                 if leaves > 0:
                     record = size == 1
@@ -325,9 +438,9 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                             cluster[size] = f
                             _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                             if _is_biconnected(nv, size + 1, eu, ev, scratch):
-                                n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                                _, n_classes, certs, lengths, counts, class_hash, slots = _tally(
                                     ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
-                                    slots, n_classes, per_size)
+                                    slots, n_classes, per_size, 1)
             if record:
                 _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                 if star is not None:
@@ -337,10 +450,39 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                     if 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
                         record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves,
                                                                  insertions) <= max_bonds
+            parent = -1
             if record:
-                n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                parent, n_classes, certs, lengths, counts, class_hash, slots = _tally(
                     ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes,
-                    per_size)
+                    per_size, 1)
+            if grow and star is None and size == max_bonds - 1:
+                # the top layer: a cluster one bond larger is this one's class with a bond added at two canonical
+                # labels (or at one and a new site), so it is counted under that key, not canonicalised itself
+                grow = False
+                n_cand = 0
+                for q in range(seg_pos[d], seg_end[d]):  # the bonds still untried at this level
+                    if _leaves_after(buf[q], refc, bond_u, bond_v, leaves) <= max_top_leaves:
+                        cand[n_cand] = buf[q]
+                        n_cand += 1
+                for s in (bond_u[b], bond_v[b]):  # and those at the ends of b that the search has not reached
+                    for p in range(inc_ptr[s], inc_ptr[s + 1]):
+                        f = inc_bond[p]
+                        if f > root and not reached[f] and _leaves_after(f, refc, bond_u, bond_v,
+                                                                         leaves) <= max_top_leaves:
+                            cand[n_cand] = f
+                            n_cand += 1
+                if parent < 0 and n_cand > 0:  # not counted itself: its class and canonical labelling all the same
+                    for k in range(nv):
+                        vcol[k] = site_col[verts[k]]
+                    parent, n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots,
+                                                     n_classes)
+                    if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+                        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash,
+                                                                               slots, n_classes)
+                for q in range(n_cand):
+                    n_extensions, ext_keys, ext_counts = _count_extension(
+                        _extension_key(cand[q], parent, labels, local, refc, bond_u, bond_v, bond_col, site_col, nv),
+                        ext_keys, ext_counts, n_extensions)
             if grow:
                 ns = seg_end[d]
                 k = ns
@@ -370,7 +512,11 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                         local[s] = -1
                         nv -= 1
         reached[root] = False
-    return certs[:n_classes], lengths[:n_classes], counts[:n_classes], per_size
+    n_classes, certs, lengths, counts, class_hash, slots = _tally_extensions(
+        ext_keys, ext_counts, max_bonds, -1 if insertions is None else insertions, ws, certs, lengths, counts,
+        class_hash, slots, n_classes, per_size)
+    kept = counts[:n_classes] > 0  # classes met only as the smaller cluster of a key may have none
+    return certs[:n_classes][kept], lengths[:n_classes][kept], counts[:n_classes][kept], per_size
 
 
 @njit(cache=True, inline="always")

@@ -44,7 +44,8 @@ def insertions_for(quantities) -> int:
     return max(INSERTIONS[q] for q in quantities)
 
 
-def scratch_for(max_vertices: int, max_edges: int) -> np.ndarray:
+@njit(cache=True)
+def scratch_for(max_vertices, max_edges):
     """Scratch space of :func:`lowest_order_of_edges` for graphs up to the given size."""
     return np.empty((_ROWS, max(2 * max_edges, max_vertices + 1, 5)), np.int64)  # 5: the merge row
 
