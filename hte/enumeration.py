@@ -5,8 +5,10 @@ an integer order (the bond id).  Starting from a root bond, every connected set 
 root and otherwise only bonds with larger ids is visited exactly once; no subset is generated twice and
 nothing is deduplicated afterwards.  On a lattice (see :mod:`hte.clusters`) the ids order bonds by the
 lexicographic order of their home cell, which is translation compatible, so rooting at the bonds of one cell
-counts each cluster exactly once per translation class.  Each visited cluster is classified on the fly by
-its canonical certificate (:mod:`hte.canonical`) into a hash table of arrays held inside the compiled code.
+counts each cluster exactly once per translation class.  Each cluster is classified on the fly into a hash
+table of canonical certificates (:mod:`hte.canonical`) held inside the compiled code: from the class and
+canonical labelling of the cluster one bond smaller and the canonical labels of the added bond, through a
+memo, so that only the first cluster of each such extension is canonicalised.
 
 References
 ----------
@@ -133,22 +135,30 @@ def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
 
 
 @njit(cache=True, inline="always")
-def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes, per_size,
-           weight):
-    """Count the cluster of `size` bonds whose local edges are in the workspace `weight` times: into its graph
-    class (:func:`_class_index`), keeping room for the next class, and into per_size; returns the class and the
-    class table."""
+def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes, per_size):
+    """Count the cluster of `size` bonds whose local edges are in the workspace: into its graph class
+    (:func:`_class_index`), keeping room for the next class, and into per_size; returns the class table."""
     for k in range(nv):
         vcol[k] = site_col[verts[k]]
     k, n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots, n_classes)
-    counts[k] += weight
-    per_size[size] += weight
+    counts[k] += 1
+    per_size[size] += 1
     if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
         certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
-    return k, n_classes, certs, lengths, counts, class_hash, slots
+    return n_classes, certs, lengths, counts, class_hash, slots
 
 
 _KEY_BITS = 6  # bits of each label and of the bond colour in an extension key (clusters of <= 62 sites)
+
+
+@njit(cache=True, inline="always")
+def _probe(keys, key):
+    """Slot of `key` in the open-addressing table `keys` (-1 = empty), or of the empty slot where it goes."""
+    mask = keys.shape[0] - 1
+    slot = np.int64(_splitmix(np.uint64(key)) & np.uint64(mask))
+    while keys[slot] >= 0 and keys[slot] != key:
+        slot = (slot + 1) & mask
+    return slot
 
 
 @njit(cache=True, inline="always")
@@ -185,10 +195,7 @@ def _extension_key(f, parent, labels, local, refc, bond_u, bond_v, bond_col, sit
 def _count_extension(key, ext_keys, ext_counts, n_extensions):
     """Count `key` once in the open-addressing table (ext_keys, ext_counts) holding n_extensions keys; returns
     the number of keys and the table, grown to stay at most half full."""
-    mask = ext_keys.shape[0] - 1
-    slot = np.int64(_splitmix(np.uint64(key)) & np.uint64(mask))
-    while ext_keys[slot] >= 0 and ext_keys[slot] != key:
-        slot = (slot + 1) & mask
+    slot = _probe(ext_keys, key)
     ext_counts[slot] += 1
     if ext_keys[slot] < 0:
         ext_keys[slot] = key
@@ -208,12 +215,81 @@ def _grown_extensions(ext_keys, ext_counts):
         key = ext_keys[old]
         if key < 0:
             continue
-        slot = np.int64(_splitmix(np.uint64(key)) & np.uint64(capacity - 1))
-        while keys[slot] >= 0:
-            slot = (slot + 1) & (capacity - 1)
+        slot = _probe(keys, key)
         keys[slot] = key
         counts[slot] = ext_counts[old]
     return keys, counts
+
+
+@njit(cache=True, inline="always")
+def _load_extended(certs, key, vcol, eu, ev, ec):
+    """Write into the workspace inputs the graph that an extension key (:func:`_extension_key`) stands for: the
+    canonical graph of its class plus its bond; returns (vertices, edges)."""
+    field = (1 << _KEY_BITS) - 1
+    colour = key & field
+    c = (key >> _KEY_BITS) & field
+    a = (key >> 2 * _KEY_BITS) & field
+    cert = certs[key >> 3 * _KEY_BITS]
+    n = cert[0]
+    for i in range(n):
+        vcol[i] = cert[1 + i]
+    m = 0
+    pos = 1 + n
+    for i in range(n):
+        for j in range(i + 1, n):
+            if cert[pos] != 0:
+                eu[m] = i
+                ev[m] = j
+                ec[m] = cert[pos] - 1
+                m += 1
+            pos += 1
+    nv = n
+    if c >= n:  # a new site, of colour c - n
+        vcol[n] = c - n
+        c = n
+        nv = n + 1
+    eu[m] = a
+    ev[m] = c
+    ec[m] = colour
+    return nv, m + 1
+
+
+@njit(cache=True)
+def _memo_miss(key, slot, memo_keys, memo_entry, n_memo, child_class, child_labels, ws, certs, lengths, counts,
+               class_hash, slots, n_classes):
+    """Classify the graph of extension `key` (absent from the memo, whose free slot for it is `slot`) and enter
+    its class and the canonical labels of its vertices (the smaller cluster's canonical labels, then the new
+    site) as memo entry n_memo; returns the memo, grown to stay at most half full, and the class table."""
+    vcol, eu, ev, ec = workspace_inputs(ws)
+    best, labels = workspace_result(ws)
+    nv, m = _load_extended(certs, key, vcol, eu, ev, ec)
+    k, n_classes = _class_index(ws, best, nv, m, certs, lengths, counts, class_hash, slots, n_classes)
+    if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
+    if n_memo == child_class.shape[0]:
+        grown_class = np.empty(2 * n_memo, np.int64)
+        grown_class[:n_memo] = child_class
+        grown_labels = np.empty((2 * n_memo, child_labels.shape[1]), np.uint8)
+        grown_labels[:n_memo] = child_labels
+        child_class, child_labels = grown_class, grown_labels
+    child_class[n_memo] = k
+    for v in range(nv):
+        child_labels[n_memo, v] = labels[v]
+    memo_keys[slot] = key
+    memo_entry[slot] = n_memo
+    n_memo += 1
+    if 2 * n_memo > memo_keys.shape[0]:
+        capacity = 2 * memo_keys.shape[0]
+        keys = -np.ones(capacity, np.int64)
+        entries = np.empty(capacity, np.int64)
+        for old in range(memo_keys.shape[0]):
+            if memo_keys[old] >= 0:
+                new = _probe(keys, memo_keys[old])
+                keys[new] = memo_keys[old]
+                entries[new] = memo_entry[old]
+        memo_keys, memo_entry = keys, entries
+    return (memo_keys, memo_entry, n_memo, child_class, child_labels, certs, lengths, counts, class_hash, slots,
+            n_classes)
 
 
 @njit(cache=True)
@@ -226,37 +302,11 @@ def _tally_extensions(ext_keys, ext_counts, max_bonds, insertions, ws, certs, le
     vcol, eu, ev, ec = workspace_inputs(ws)
     best, _ = workspace_result(ws)
     scratch = scratch_for(max_bonds + 1, max_bonds)
-    field = (1 << _KEY_BITS) - 1
     for slot in range(ext_keys.shape[0]):
         key = ext_keys[slot]
         if key < 0:
             continue
-        colour = key & field
-        c = (key >> _KEY_BITS) & field
-        a = (key >> 2 * _KEY_BITS) & field
-        cert = certs[key >> 3 * _KEY_BITS]
-        n = cert[0]
-        for i in range(n):
-            vcol[i] = cert[1 + i]
-        m = 0
-        pos = 1 + n
-        for i in range(n):
-            for j in range(i + 1, n):
-                if cert[pos] != 0:
-                    eu[m] = i
-                    ev[m] = j
-                    ec[m] = cert[pos] - 1
-                    m += 1
-                pos += 1
-        nv = n
-        if c >= n:  # a new site, of colour c - n
-            vcol[n] = c - n
-            c = n
-            nv = n + 1
-        eu[m] = a
-        ev[m] = c
-        ec[m] = colour
-        m += 1
+        nv, m = _load_extended(certs, key, vcol, eu, ev, ec)
         if insertions >= 0 and lowest_order_of_edges(nv, m, eu, ev, insertions, scratch) > max_bonds:
             continue
         k, n_classes = _class_index(ws, best, nv, m, certs, lengths, counts, class_hash, slots, n_classes)
@@ -271,15 +321,22 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
                             biconnected_only=False, insertions=None):
     """Visit every connected bond cluster of <= max_bonds bonds whose smallest bond id is one of `roots`.
 
+    Except in the star census, no cluster is canonicalised on its own.  The search keeps the class and the
+    canonical labelling of the cluster of each size on its path; a cluster one bond larger is that class with a
+    bond added between two canonical labels (or from one to a new site of a given colour), so its class and
+    labelling follow from this *extension key* through a memo filled the first time the key is met.  The
+    clusters of max_bonds bonds are not visited: each is counted under its extension key, and each key is
+    classified once at the end.
+
     With ``insertions`` = k (0, 2 or 4) the clusters whose linked weights with up to k magnetisation insertions
     vanish to beta^max_bonds (lowest order E + b - P_k > max_bonds, :mod:`hte.vanishing_weights`) are, for the
-    most part, walked through but neither classified nor counted, which saves most of their cost: a cluster is
-    dropped when a cheap lower bound on b - P_k (:func:`_uncovered_bridges_bound`) shows it; the few that the
-    bound misses are kept and left to the caller.  The search also skips every cluster with L degree-1 sites and
+    most part, walked through but not counted: below max_bonds a cluster is dropped when a cheap lower bound on
+    b - P_k (:func:`_uncovered_bridges_bound`) shows it, and the few that the bound misses are kept and left to
+    the caller; at max_bonds only clusters with at most k degree-1 sites are counted, and each key is checked
+    with the exact rule.  The search also skips every cluster with L degree-1 sites and
     E + ceil((L - k) / 2) > max_bonds: in any larger cluster each of those sites either keeps degree 1, and so
     ends a bridge that at most k of them can leave used once, or takes a new bond, and a bond serves two of them
-    at most.  One bond below max_bonds with L > k, the last bond is picked directly among those that join a
-    degree-1 site to another site of the cluster and leave at most k such sites.
+    at most.
 
     With ``biconnected_only`` only the biconnected clusters (a single bond, or no cut vertex) are classified and
     counted, and the search skips every cluster that cannot grow into one within max_bonds bonds: one with a
@@ -301,6 +358,9 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
     per_size : int64[max_bonds + 1]
         Number of clusters with n bonds.
     """
+    n_colours = max(int(site_col.max(initial=0)), int(bond_col.max(initial=0))) + 1
+    if max_bonds + 1 + n_colours >= 1 << _KEY_BITS:
+        raise ValueError(f"clusters of {max_bonds} bonds with {n_colours} colours do not fit an extension key")
     # The modes go in as None (off) or a value, so that numba compiles each combination on its own and prunes the
     # branches of the modes that are off: the full search runs as fast as without the other rules.
     return _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites,
@@ -338,7 +398,15 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
     ext_keys = -np.ones(1024, np.int64)
     ext_counts = np.zeros(1024, np.int64)
     n_extensions = 0
-    cand = np.empty(buf.shape[0], np.int64)  # the bonds that may make a cluster of the top layer from this one
+    # all clusters but the star census: the class of the cluster of each size on the search path and the canonical
+    # label of each of its sites, found from the smaller cluster's by a memo of extension keys -> (class, labels)
+    path_class = np.zeros(max_bonds + 1, np.int64)
+    path_labels = np.zeros((max_bonds + 1, max_bonds + 2), np.int64)
+    memo_keys = -np.ones(1024, np.int64)
+    memo_entry = np.empty(1024, np.int64)
+    child_class = np.empty(512, np.int64)
+    child_labels = np.empty((512, max_bonds + 2), np.uint8)
+    n_memo = 0
     max_top_leaves = 1 << 30  # degree-1 sites a cluster of max_bonds bonds may have and be counted
     if insertions is not None:
         max_top_leaves = insertions
@@ -389,6 +457,11 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             seg_pos[d] += 1
             if track:
                 available[b] = False
+            key = -1
+            if star is None and size > 0:
+                key = _extension_key(b, path_class[size], path_labels[size], local, refc, bond_u, bond_v, bond_col,
+                                     site_col, nv)
+            nv_before = nv
             cluster[size] = b
             size += 1
             for s in (bond_u[b], bond_v[b]):
@@ -397,6 +470,31 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                     verts[nv] = s
                     nv += 1
                 refc[s] += 1
+            if key >= 0:
+                slot = _probe(memo_keys, key)
+                if memo_keys[slot] != key:
+                    (memo_keys, memo_entry, n_memo, child_class, child_labels, certs, lengths, counts, class_hash,
+                     slots, n_classes) = _memo_miss(key, slot, memo_keys, memo_entry, n_memo, child_class,
+                                                    child_labels, ws, certs, lengths, counts, class_hash, slots,
+                                                    n_classes)
+                    slot = _probe(memo_keys, key)
+                e = memo_entry[slot]
+                path_class[size] = child_class[e]
+                for v in range(nv_before):
+                    path_labels[size, v] = child_labels[e, path_labels[size - 1, v]]
+                if nv > nv_before:
+                    path_labels[size, nv_before] = child_labels[e, nv_before]
+            elif star is None:  # the root bond
+                for k in range(nv):
+                    vcol[k] = site_col[verts[k]]
+                _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                path_class[size], n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash,
+                                                           slots, n_classes)
+                if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
+                    certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots,
+                                                                           n_classes)
+                for v in range(nv):
+                    path_labels[size, v] = labels[v]
             record = True
             grow = size < max_bonds
             leaves = 0
@@ -438,51 +536,43 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                             cluster[size] = f
                             _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                             if _is_biconnected(nv, size + 1, eu, ev, scratch):
-                                _, n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                                n_classes, certs, lengths, counts, class_hash, slots = _tally(
                                     ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
-                                    slots, n_classes, per_size, 1)
-            if record:
-                _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                if star is not None:
+                                    slots, n_classes, per_size)
+            if star is not None:
+                if record:
+                    _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                     if size > 1:
                         record = _is_biconnected(nv, size, eu, ev, scratch)
-                elif insertions is not None:
-                    if 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
-                        record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves,
-                                                                 insertions) <= max_bonds
-            parent = -1
-            if record:
-                parent, n_classes, certs, lengths, counts, class_hash, slots = _tally(
-                    ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes,
-                    per_size, 1)
+                if record:
+                    n_classes, certs, lengths, counts, class_hash, slots = _tally(
+                        ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots,
+                        n_classes, per_size)
+            else:
+                if insertions is not None and 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
+                    record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves, insertions) <= max_bonds
+                if record:
+                    counts[path_class[size]] += 1
+                    per_size[size] += 1
             if grow and star is None and size == max_bonds - 1:
                 # the top layer: a cluster one bond larger is this one's class with a bond added at two canonical
-                # labels (or at one and a new site), so it is counted under that key, not canonicalised itself
+                # labels (or at one and a new site), so it is counted under that key, not classified itself
                 grow = False
-                n_cand = 0
                 for q in range(seg_pos[d], seg_end[d]):  # the bonds still untried at this level
                     if _leaves_after(buf[q], refc, bond_u, bond_v, leaves) <= max_top_leaves:
-                        cand[n_cand] = buf[q]
-                        n_cand += 1
-                for s in (bond_u[b], bond_v[b]):  # and those at the ends of b that the search has not reached
+                        n_extensions, ext_keys, ext_counts = _count_extension(
+                            _extension_key(buf[q], path_class[size], path_labels[size], local, refc, bond_u, bond_v,
+                                           bond_col, site_col, nv), ext_keys, ext_counts, n_extensions)
+                for s in (bond_u[b], bond_v[b]):  # and those at a site that b added, not reached yet
+                    if local[s] < nv_before:
+                        continue
                     for p in range(inc_ptr[s], inc_ptr[s + 1]):
                         f = inc_bond[p]
                         if f > root and not reached[f] and _leaves_after(f, refc, bond_u, bond_v,
                                                                          leaves) <= max_top_leaves:
-                            cand[n_cand] = f
-                            n_cand += 1
-                if parent < 0 and n_cand > 0:  # not counted itself: its class and canonical labelling all the same
-                    for k in range(nv):
-                        vcol[k] = site_col[verts[k]]
-                    parent, n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots,
-                                                     n_classes)
-                    if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-                        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash,
-                                                                               slots, n_classes)
-                for q in range(n_cand):
-                    n_extensions, ext_keys, ext_counts = _count_extension(
-                        _extension_key(cand[q], parent, labels, local, refc, bond_u, bond_v, bond_col, site_col, nv),
-                        ext_keys, ext_counts, n_extensions)
+                            n_extensions, ext_keys, ext_counts = _count_extension(
+                                _extension_key(f, path_class[size], path_labels[size], local, refc, bond_u, bond_v,
+                                               bond_col, site_col, nv), ext_keys, ext_counts, n_extensions)
             if grow:
                 ns = seg_end[d]
                 k = ns
@@ -491,6 +581,8 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                     k += 1
                 newstart = k
                 for s in (bond_u[b], bond_v[b]):
+                    if local[s] < nv_before:  # every bond at a site already in the cluster has been reached
+                        continue
                     for p in range(inc_ptr[s], inc_ptr[s + 1]):
                         f = inc_bond[p]
                         if f > root and not reached[f]:
