@@ -401,6 +401,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
     # all clusters but the star census: the class of the cluster of each size on the search path and the canonical
     # label of each of its sites, found from the smaller cluster's by a memo of extension keys -> (class, labels)
     path_class = np.zeros(max_bonds + 1, np.int64)
+    path_leaves = np.zeros(max_bonds + 1, np.int64)  # and its number of degree-1 sites
     path_labels = np.zeros((max_bonds + 1, max_bonds + 2), np.int64)
     memo_keys = -np.ones(1024, np.int64)
     memo_entry = np.empty(1024, np.int64)
@@ -457,6 +458,12 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             seg_pos[d] += 1
             if track:
                 available[b] = False
+            if insertions is not None and size > 0 and 2 * (size + 1) > max_bonds:
+                # skip, without visiting, a cluster that neither counts nor has a descendant that counts (the
+                # rule below, applied to the degree-1 sites that adding b leaves)
+                after = _leaves_after(b, refc, bond_u, bond_v, path_leaves[size])
+                if size + 1 + (after - insertions + 1) // 2 > max_bonds:
+                    continue
             key = -1
             if star is None and size > 0:
                 key = _extension_key(b, path_class[size], path_labels[size], local, refc, bond_u, bond_v, bond_col,
@@ -502,6 +509,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 for k in range(nv):
                     if refc[verts[k]] == 1:
                         leaves += 1
+            path_leaves[size] = leaves
             if insertions is not None and size + (leaves - insertions + 1) // 2 > max_bonds:
                 grow = False
             if star is not None:
