@@ -151,7 +151,7 @@ def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, cl
 _KEY_BITS = 6  # bits of each label and of the bond colour in an extension key (clusters of <= 62 sites)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _probe(keys, key):
     """Slot of `key` in the open-addressing table `keys` (-1 = empty), or of the empty slot where it goes."""
     mask = keys.shape[0] - 1
@@ -161,7 +161,7 @@ def _probe(keys, key):
     return slot
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _leaves_after(f, refc, bond_u, bond_v, leaves):
     """Degree-1 sites of the current cluster (which has `leaves` of them) once bond f, at one of its sites, is
     added."""
@@ -172,18 +172,18 @@ def _leaves_after(f, refc, bond_u, bond_v, leaves):
     return leaves - (refc[u] == 1) - (refc[v] == 1)
 
 
-@njit(cache=True, inline="always")
-def _extension_key(f, parent, labels, local, refc, bond_u, bond_v, bond_col, site_col, nv):
-    """Key of the cluster one bond larger than the current one (of class `parent`, canonical labelling `labels`)
-    that bond f makes: (parent, a, c, colour of f) packed, where f joins the sites of canonical labels a < c,
-    or joins a to a new site and c = nv + colour of that site."""
+@njit(cache=True)
+def _extension_key(f, parent, labels, row, local, refc, bond_u, bond_v, bond_col, site_col, nv):
+    """Key of the cluster one bond larger than the current one (of class `parent`, canonical labelling
+    labels[row]) that bond f makes: (parent, a, c, colour of f) packed, where f joins the sites of canonical
+    labels a < c, or joins a to a new site and c = nv + colour of that site."""
     u = bond_u[f]
     v = bond_v[f]
     if refc[u] == 0:
         u, v = v, u
-    a = labels[local[u]]
+    a = labels[row, local[u]]
     if refc[v] > 0:
-        c = labels[local[v]]
+        c = labels[row, local[v]]
         if c < a:
             a, c = c, a
     else:
@@ -191,18 +191,16 @@ def _extension_key(f, parent, labels, local, refc, bond_u, bond_v, bond_col, sit
     return (((parent << _KEY_BITS | a) << _KEY_BITS) | c) << _KEY_BITS | bond_col[f]
 
 
-@njit(cache=True, inline="always")
-def _count_extension(key, ext_keys, ext_counts, n_extensions):
-    """Count `key` once in the open-addressing table (ext_keys, ext_counts) holding n_extensions keys; returns
-    the number of keys and the table, grown to stay at most half full."""
-    slot = _probe(ext_keys, key)
-    ext_counts[slot] += 1
-    if ext_keys[slot] < 0:
-        ext_keys[slot] = key
-        n_extensions += 1
-        if 2 * n_extensions > ext_keys.shape[0]:
-            ext_keys, ext_counts = _grown_extensions(ext_keys, ext_counts)
-    return n_extensions, ext_keys, ext_counts
+@njit(cache=True)
+def _count_key(keys, counts, key):
+    """Count `key` once in the open-addressing table (keys, counts); returns 1 if it is new, else 0 (the caller
+    keeps the table at most half full: :func:`_grown_extensions`)."""
+    slot = _probe(keys, key)
+    counts[slot] += 1
+    if keys[slot] >= 0:
+        return 0
+    keys[slot] = key
+    return 1
 
 
 @njit(cache=True)
@@ -380,7 +378,6 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
     reached = np.zeros(n_bonds, np.bool_)
     available = np.zeros(n_bonds, np.bool_)  # star mode: in the untried list of the current level
     track = star is not None
-    count_leaves = star is not None or insertions is not None
     local = -np.ones(n_sites, np.int64)
     refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
@@ -401,7 +398,8 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
     # all clusters but the star census: the class of the cluster of each size on the search path and the canonical
     # label of each of its sites, found from the smaller cluster's by a memo of extension keys -> (class, labels)
     path_class = np.zeros(max_bonds + 1, np.int64)
-    path_leaves = np.zeros(max_bonds + 1, np.int64)  # and its number of degree-1 sites
+    path_leaves = np.zeros(max_bonds + 1, np.int64)  # and its numbers of degree-1 sites and of odd-degree sites
+    path_odd = np.zeros(max_bonds + 1, np.int64)
     path_labels = np.zeros((max_bonds + 1, max_bonds + 2), np.int64)
     memo_keys = -np.ones(1024, np.int64)
     memo_entry = np.empty(1024, np.int64)
@@ -458,15 +456,17 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
             seg_pos[d] += 1
             if track:
                 available[b] = False
-            if insertions is not None and size > 0 and 2 * (size + 1) > max_bonds:
-                # skip, without visiting, a cluster that neither counts nor has a descendant that counts (the
-                # rule below, applied to the degree-1 sites that adding b leaves)
-                after = _leaves_after(b, refc, bond_u, bond_v, path_leaves[size])
-                if size + 1 + (after - insertions + 1) // 2 > max_bonds:
-                    continue
+            leaves = 2  # degree-1 sites and odd-degree sites of the cluster with b, from those without it
+            odd = 2
+            if size > 0:
+                leaves = _leaves_after(b, refc, bond_u, bond_v, path_leaves[size])
+                odd = path_odd[size] + 2 - 2 * (refc[bond_u[b]] & 1) - 2 * (refc[bond_v[b]] & 1)
+            if insertions is not None and 2 * (size + 1) > max_bonds and (
+                    size + 1 + (leaves - insertions + 1) // 2 > max_bonds):
+                continue  # skip, without visiting, a cluster that neither counts nor can grow into one that counts
             key = -1
             if star is None and size > 0:
-                key = _extension_key(b, path_class[size], path_labels[size], local, refc, bond_u, bond_v, bond_col,
+                key = _extension_key(b, path_class[size], path_labels, size, local, refc, bond_u, bond_v, bond_col,
                                      site_col, nv)
             nv_before = nv
             cluster[size] = b
@@ -504,12 +504,8 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                     path_labels[size, v] = labels[v]
             record = True
             grow = size < max_bonds
-            leaves = 0
-            if count_leaves:
-                for k in range(nv):
-                    if refc[verts[k]] == 1:
-                        leaves += 1
             path_leaves[size] = leaves
+            path_odd[size] = odd
             if insertions is not None and size + (leaves - insertions + 1) // 2 > max_bonds:
                 grow = False
             if star is not None:
@@ -558,7 +554,7 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                         n_classes, per_size)
             else:
                 if insertions is not None and 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
-                    record = size + _uncovered_bridges_bound(nv, size, verts, refc, leaves, insertions) <= max_bonds
+                    record = size + _uncovered_bridges_bound(nv, size, leaves, odd, insertions) <= max_bonds
                 if record:
                     counts[path_class[size]] += 1
                     per_size[size] += 1
@@ -566,11 +562,13 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 # the top layer: a cluster one bond larger is this one's class with a bond added at two canonical
                 # labels (or at one and a new site), so it is counted under that key, not classified itself
                 grow = False
+                while 2 * (n_extensions + seg_end[d] - seg_pos[d] + 2 * max_deg) > ext_keys.shape[0]:
+                    ext_keys, ext_counts = _grown_extensions(ext_keys, ext_counts)  # room for every new key below
                 for q in range(seg_pos[d], seg_end[d]):  # the bonds still untried at this level
                     if _leaves_after(buf[q], refc, bond_u, bond_v, leaves) <= max_top_leaves:
-                        n_extensions, ext_keys, ext_counts = _count_extension(
-                            _extension_key(buf[q], path_class[size], path_labels[size], local, refc, bond_u, bond_v,
-                                           bond_col, site_col, nv), ext_keys, ext_counts, n_extensions)
+                        n_extensions += _count_key(ext_keys, ext_counts, _extension_key(
+                            buf[q], path_class[size], path_labels, size, local, refc, bond_u, bond_v, bond_col,
+                            site_col, nv))
                 for s in (bond_u[b], bond_v[b]):  # and those at a site that b added, not reached yet
                     if local[s] < nv_before:
                         continue
@@ -578,9 +576,9 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                         f = inc_bond[p]
                         if f > root and not reached[f] and _leaves_after(f, refc, bond_u, bond_v,
                                                                          leaves) <= max_top_leaves:
-                            n_extensions, ext_keys, ext_counts = _count_extension(
-                                _extension_key(f, path_class[size], path_labels[size], local, refc, bond_u, bond_v,
-                                               bond_col, site_col, nv), ext_keys, ext_counts, n_extensions)
+                            n_extensions += _count_key(ext_keys, ext_counts, _extension_key(
+                                f, path_class[size], path_labels, size, local, refc, bond_u, bond_v, bond_col,
+                                site_col, nv))
             if grow:
                 ns = seg_end[d]
                 k = ns
@@ -654,15 +652,13 @@ def _bonds_to_mend_leaves(nv, verts, refc, bond_u, bond_v, inc_ptr, inc_bond, av
 
 
 @njit(cache=True, inline="always")
-def _uncovered_bridges_bound(nv, ne, verts, refc, leaves, insertions):
-    """A cheap lower bound on b - P_k (:mod:`hte.vanishing_weights`): the T-join of at most k nodes covers the
-    bridges of at most k of the L degree-1 sites, so at least L - k stay uncovered; in a tree the bridges left
-    uncovered form a T-join for T = (sites of odd degree) xor (the k nodes), so at least ceil((odd - k) / 2)."""
+def _uncovered_bridges_bound(nv, ne, leaves, odd, insertions):
+    """A cheap lower bound on b - P_k (:mod:`hte.vanishing_weights`) for a cluster of nv sites, ne bonds, `leaves`
+    sites of degree 1 and `odd` of odd degree: the T-join of at most k nodes covers the bridges of at most k of
+    the degree-1 sites, so at least leaves - k stay uncovered; in a tree the bridges left uncovered form a T-join
+    for T = (sites of odd degree) xor (the k nodes), so at least ceil((odd - k) / 2)."""
     bound = leaves - insertions
     if nv == ne + 1:
-        odd = 0
-        for k in range(nv):
-            odd += refc[verts[k]] & 1
         if (odd - insertions + 1) // 2 > bound:
             bound = (odd - insertions + 1) // 2
     return bound
