@@ -136,19 +136,43 @@ def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
 
 @njit(cache=True, inline="always")
 def _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots, n_classes, per_size):
-    """Count the cluster of `size` bonds whose local edges are in the workspace: into its graph class
-    (:func:`_class_index`), keeping room for the next class, and into per_size; returns the class table."""
+    """Count the cluster of `size` bonds whose local edges are in the workspace into its graph class
+    (:func:`_class_index`; the table must have room) and into per_size; returns the number of classes."""
     for k in range(nv):
         vcol[k] = site_col[verts[k]]
     k, n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots, n_classes)
     counts[k] += 1
     per_size[size] += 1
-    if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
-    return n_classes, certs, lengths, counts, class_hash, slots
+    return n_classes
 
 
 _KEY_BITS = 6  # bits of each label and of the bond colour in an extension key (clusters of <= 62 sites)
+
+
+@njit(cache=True)
+def _extension(refc_u, refc_v, label_u, label_v, colour_u, colour_v, nv, leaves, parent, bond_colour):
+    """The cluster that a bond (u, v) adds to the current one (nv sites, `leaves` of degree 1, class `parent`):
+    returns its number of degree-1 sites and its extension key, (parent, a, c, bond colour) packed, where the
+    bond joins the sites of canonical labels a < c, or joins a to a new site and c = nv + colour of that site.
+
+    refc_* are the degrees of u and v in the current cluster (at least one positive), label_* their canonical
+    labels (ignored for a site not in the cluster), colour_* their site colours.  Scalars only: array arguments
+    cost reference counting, which took most of the census's time in its innermost loops."""
+    if refc_u == 0:
+        refc_u, refc_v = refc_v, refc_u
+        label_u, label_v = label_v, label_u
+        colour_u, colour_v = colour_v, colour_u
+    after = leaves - (refc_u == 1)
+    a = label_u
+    if refc_v > 0:
+        after -= refc_v == 1
+        c = label_v
+        if c < a:
+            a, c = c, a
+    else:
+        after += 1
+        c = nv + colour_v
+    return after, (((parent << _KEY_BITS | a) << _KEY_BITS) | c) << _KEY_BITS | bond_colour
 
 
 @njit(cache=True)
@@ -162,66 +186,22 @@ def _probe(keys, key):
 
 
 @njit(cache=True)
-def _leaves_after(f, refc, bond_u, bond_v, leaves):
-    """Degree-1 sites of the current cluster (which has `leaves` of them) once bond f, at one of its sites, is
-    added."""
-    u = bond_u[f]
-    v = bond_v[f]
-    if refc[u] == 0 or refc[v] == 0:  # one new site, a new degree-1 site
-        return leaves + 1 - (refc[u] == 1) - (refc[v] == 1)
-    return leaves - (refc[u] == 1) - (refc[v] == 1)
-
-
-@njit(cache=True)
-def _extension_key(f, parent, labels, row, local, refc, bond_u, bond_v, bond_col, site_col, nv):
-    """Key of the cluster one bond larger than the current one (of class `parent`, canonical labelling
-    labels[row]) that bond f makes: (parent, a, c, colour of f) packed, where f joins the sites of canonical
-    labels a < c, or joins a to a new site and c = nv + colour of that site."""
-    u = bond_u[f]
-    v = bond_v[f]
-    if refc[u] == 0:
-        u, v = v, u
-    a = labels[row, local[u]]
-    if refc[v] > 0:
-        c = labels[row, local[v]]
-        if c < a:
-            a, c = c, a
-    else:
-        c = nv + site_col[v]
-    return (((parent << _KEY_BITS | a) << _KEY_BITS) | c) << _KEY_BITS | bond_col[f]
-
-
-@njit(cache=True)
-def _count_key(keys, counts, key):
-    """Count `key` once in the open-addressing table (keys, counts); returns 1 if it is new, else 0 (the caller
-    keeps the table at most half full: :func:`_grown_extensions`)."""
-    slot = _probe(keys, key)
-    counts[slot] += 1
-    if keys[slot] >= 0:
-        return 0
-    keys[slot] = key
-    return 1
-
-
-@njit(cache=True)
-def _grown_extensions(ext_keys, ext_counts):
-    """The extension table rehashed into twice the slots."""
-    capacity = 2 * ext_keys.shape[0]
-    keys = -np.ones(capacity, np.int64)
-    counts = np.zeros(capacity, np.int64)
-    for old in range(ext_keys.shape[0]):
-        key = ext_keys[old]
-        if key < 0:
-            continue
-        slot = _probe(keys, key)
-        keys[slot] = key
-        counts[slot] = ext_counts[old]
-    return keys, counts
+def _grown_table(keys, values):
+    """The open-addressing table (keys, values) rehashed into twice the slots (new values 0)."""
+    capacity = 2 * keys.shape[0]
+    new_keys = -np.ones(capacity, np.int64)
+    new_values = np.zeros(capacity, np.int64)
+    for old in range(keys.shape[0]):
+        if keys[old] >= 0:
+            slot = _probe(new_keys, keys[old])
+            new_keys[slot] = keys[old]
+            new_values[slot] = values[old]
+    return new_keys, new_values
 
 
 @njit(cache=True, inline="always")
 def _load_extended(certs, key, vcol, eu, ev, ec):
-    """Write into the workspace inputs the graph that an extension key (:func:`_extension_key`) stands for: the
+    """Write into the workspace inputs the graph that an extension key (:func:`_extension`) stands for: the
     canonical graph of its class plus its bond; returns (vertices, edges)."""
     field = (1 << _KEY_BITS) - 1
     colour = key & field
@@ -253,41 +233,21 @@ def _load_extended(certs, key, vcol, eu, ev, ec):
 
 
 @njit(cache=True)
-def _memo_miss(key, slot, memo_keys, memo_entry, n_memo, child_class, child_labels, ws, certs, lengths, counts,
-               class_hash, slots, n_classes):
+def _memo_add(key, slot, memo_keys, memo_entry, n_memo, child_class, child_labels, ws, certs, lengths, counts,
+              class_hash, slots, n_classes):
     """Classify the graph of extension `key` (absent from the memo, whose free slot for it is `slot`) and enter
     its class and the canonical labels of its vertices (the smaller cluster's canonical labels, then the new
-    site) as memo entry n_memo; returns the memo, grown to stay at most half full, and the class table."""
+    site) as memo entry n_memo; the memo and the class table must have room.  Returns (memo entries, classes)."""
     vcol, eu, ev, ec = workspace_inputs(ws)
     best, labels = workspace_result(ws)
     nv, m = _load_extended(certs, key, vcol, eu, ev, ec)
     k, n_classes = _class_index(ws, best, nv, m, certs, lengths, counts, class_hash, slots, n_classes)
-    if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
-    if n_memo == child_class.shape[0]:
-        grown_class = np.empty(2 * n_memo, np.int64)
-        grown_class[:n_memo] = child_class
-        grown_labels = np.empty((2 * n_memo, child_labels.shape[1]), np.uint8)
-        grown_labels[:n_memo] = child_labels
-        child_class, child_labels = grown_class, grown_labels
     child_class[n_memo] = k
     for v in range(nv):
         child_labels[n_memo, v] = labels[v]
     memo_keys[slot] = key
     memo_entry[slot] = n_memo
-    n_memo += 1
-    if 2 * n_memo > memo_keys.shape[0]:
-        capacity = 2 * memo_keys.shape[0]
-        keys = -np.ones(capacity, np.int64)
-        entries = np.empty(capacity, np.int64)
-        for old in range(memo_keys.shape[0]):
-            if memo_keys[old] >= 0:
-                new = _probe(keys, memo_keys[old])
-                keys[new] = memo_keys[old]
-                entries[new] = memo_entry[old]
-        memo_keys, memo_entry = keys, entries
-    return (memo_keys, memo_entry, n_memo, child_class, child_labels, certs, lengths, counts, class_hash, slots,
-            n_classes)
+    return n_memo + 1, n_classes
 
 
 @njit(cache=True)
@@ -368,48 +328,28 @@ def enumerate_bond_clusters(max_bonds, roots, bond_u, bond_v, bond_col, site_col
 @njit(cache=True)
 def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, n_sites, star, insertions):
     """:func:`enumerate_bond_clusters`, with ``star`` None for all clusters and True for the biconnected ones,
-    ``insertions`` None for no rule on vanishing weights."""
+    ``insertions`` None for no rule on vanishing weights.  Allocates the search state and the tables and runs
+    :func:`_walk`, growing the tables whenever it stops for room."""
     n_bonds = bond_u.shape[0]
     max_deg = 0
     for s in range(n_sites):
-        d = inc_ptr[s + 1] - inc_ptr[s]
-        if d > max_deg:
-            max_deg = d
+        if inc_ptr[s + 1] - inc_ptr[s] > max_deg:
+            max_deg = inc_ptr[s + 1] - inc_ptr[s]
+    # the search: sites and bonds of the cluster, the untried bonds of each level (Redelmeier), and for the
+    # cluster of each size on the search path its class, numbers of degree-1 and odd-degree sites and the
+    # canonical label of each of its sites
     reached = np.zeros(n_bonds, np.bool_)
-    available = np.zeros(n_bonds, np.bool_)  # star mode: in the untried list of the current level
-    track = star is not None
+    available = np.zeros(n_bonds, np.bool_)  # star census: in the untried list of the current level
     local = -np.ones(n_sites, np.int64)
     refc = np.zeros(n_sites, np.int64)  # bonds of the cluster at each site (its degree in the cluster)
     verts = np.empty(max_bonds + 2, np.int64)
     cluster = np.empty(max_bonds + 1, np.int64)
     buf = np.empty((max_bonds + 2) * (2 * max_deg * (max_bonds + 1) + 2), np.int64)
-    seg_start = np.empty(max_bonds + 2, np.int64)
-    seg_end = np.empty(max_bonds + 2, np.int64)
-    seg_pos = np.empty(max_bonds + 2, np.int64)
-    seg_new = np.empty(max_bonds + 2, np.int64)
-    ws = new_workspace(max_bonds + 1, max_bonds)
-    vcol, eu, ev, ec = workspace_inputs(ws)
-    best, labels = workspace_result(ws)
-    scratch = np.empty((6, 2 * max_bonds + 3), np.int64)  # for _is_biconnected
-    # the top layer: counts of clusters of max_bonds bonds by _extension_key, an open-addressing table
-    ext_keys = -np.ones(1024, np.int64)
-    ext_counts = np.zeros(1024, np.int64)
-    n_extensions = 0
-    # all clusters but the star census: the class of the cluster of each size on the search path and the canonical
-    # label of each of its sites, found from the smaller cluster's by a memo of extension keys -> (class, labels)
-    path_class = np.zeros(max_bonds + 1, np.int64)
-    path_leaves = np.zeros(max_bonds + 1, np.int64)  # and its numbers of degree-1 sites and of odd-degree sites
-    path_odd = np.zeros(max_bonds + 1, np.int64)
+    segments = np.empty((4, max_bonds + 2), np.int64)  # start, end, next untried, first newly reached
+    path = np.zeros((3, max_bonds + 1), np.int64)  # class, degree-1 sites, odd-degree sites
     path_labels = np.zeros((max_bonds + 1, max_bonds + 2), np.int64)
-    memo_keys = -np.ones(1024, np.int64)
-    memo_entry = np.empty(1024, np.int64)
-    child_class = np.empty(512, np.int64)
-    child_labels = np.empty((512, max_bonds + 2), np.uint8)
-    n_memo = 0
-    max_top_leaves = 1 << 30  # degree-1 sites a cluster of max_bonds bonds may have and be counted
-    if insertions is not None:
-        max_top_leaves = insertions
-
+    ws = new_workspace(max_bonds + 1, max_bonds)
+    scratch = np.empty((6, 2 * max_bonds + 3), np.int64)  # for _is_biconnected
     # the graph classes: an open-addressing hash table of class indices, kept at most half full
     n_vertices = max_bonds + 1
     certs = np.zeros((64, 1 + n_vertices + n_vertices * (n_vertices - 1) // 2), np.int64)
@@ -417,20 +357,79 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
     counts = np.zeros(64, np.int64)
     class_hash = np.zeros(64, np.uint64)
     slots = -np.ones(128, np.int64)
-    n_classes = 0
     per_size = np.zeros(max_bonds + 1, np.int64)
+    # the memo: extension key -> entry (class, canonical labels of the sites)
+    memo_keys = -np.ones(1024, np.int64)
+    memo_entry = np.zeros(1024, np.int64)
+    child_class = np.empty(512, np.int64)
+    child_labels = np.empty((512, max_bonds + 2), np.uint8)
+    # the top layer: clusters of max_bonds bonds counted by extension key
+    ext_keys = -np.ones(1024, np.int64)
+    ext_counts = np.zeros(1024, np.int64)
 
-    for r in range(roots.shape[0]):
+    # room _walk needs before each step: classes it may add, keys the top layer may add
+    class_room = 2 + (max_deg * (max_bonds + 2) if star is not None else 0)
+    key_room = 2 * max_deg * (max_bonds + 2)
+    state = np.zeros(7, np.int64)  # root, level (-1: root not started), size, sites, classes, memo entries, keys
+    state[1] = -1
+    while _walk(state, max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, star, insertions,
+                class_room, key_room, reached, available, local, refc, verts, cluster, buf, segments, path,
+                path_labels, ws, scratch, certs, lengths, counts, class_hash, slots, per_size, memo_keys, memo_entry,
+                child_class, child_labels, ext_keys, ext_counts):
+        n_classes, n_memo, n_keys = state[4], state[5], state[6]
+        while n_classes + class_room > certs.shape[0]:
+            certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
+        while 2 * (n_classes + class_room) > slots.shape[0]:
+            slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
+        if n_memo == child_class.shape[0]:
+            grown_class = np.empty(2 * n_memo, np.int64)
+            grown_class[:n_memo] = child_class
+            grown_labels = np.empty((2 * n_memo, max_bonds + 2), np.uint8)
+            grown_labels[:n_memo] = child_labels
+            child_class, child_labels = grown_class, grown_labels
+        while 2 * (n_memo + 1) > memo_keys.shape[0]:
+            memo_keys, memo_entry = _grown_table(memo_keys, memo_entry)
+        while 2 * (n_keys + key_room) > ext_keys.shape[0]:
+            ext_keys, ext_counts = _grown_table(ext_keys, ext_counts)
+    n_classes, certs, lengths, counts, class_hash, slots = _tally_extensions(
+        ext_keys, ext_counts, max_bonds, -1 if insertions is None else insertions, ws, certs, lengths, counts,
+        class_hash, slots, state[4], per_size)
+    kept = counts[:n_classes] > 0  # classes met only as the smaller cluster of a key may have none
+    return certs[:n_classes][kept], lengths[:n_classes][kept], counts[:n_classes][kept], per_size
+
+
+@njit(cache=True)
+def _walk(state, max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, inc_bond, star, insertions,
+          class_room, key_room, reached, available, local, refc, verts, cluster, buf, segments, path, path_labels,
+          ws, scratch, certs, lengths, counts, class_hash, slots, per_size, memo_keys, memo_entry, child_class,
+          child_labels, ext_keys, ext_counts):
+    """The search of :func:`_enumerate` from where `state` says; returns 0 when every root is done, 1 when it
+    stopped (state saved) because a table lacks room for the next step.
+
+    No array is ever reassigned here and the innermost loops call no function with array arguments: numba
+    counts references to arrays on such assignments and calls, and that had cost more than the search."""
+    vcol, eu, ev, ec = workspace_inputs(ws)
+    best, labels = workspace_result(ws)
+    seg_start, seg_end, seg_pos, seg_new = segments[0], segments[1], segments[2], segments[3]
+    path_class, path_leaves, path_odd = path[0], path[1], path[2]
+    track = star is not None
+    max_top_leaves = 1 << 30  # degree-1 sites a cluster of max_bonds bonds may have and be counted
+    if insertions is not None:
+        max_top_leaves = insertions
+    r, d, size, nv = state[0], state[1], state[2], state[3]
+    n_classes, n_memo, n_keys = state[4], state[5], state[6]
+    while r < roots.shape[0]:
         root = roots[r]
-        reached[root] = True
-        nv = 0
-        size = 0
-        buf[0] = root
-        seg_start[0] = 0
-        seg_end[0] = 1
-        seg_pos[0] = 0
-        seg_new[0] = 1
-        d = 0
+        if d < 0:
+            reached[root] = True
+            nv = 0
+            size = 0
+            buf[0] = root
+            seg_start[0] = 0
+            seg_end[0] = 1
+            seg_pos[0] = 0
+            seg_new[0] = 1
+            d = 0
         while d >= 0:
             if seg_pos[d] == seg_end[d]:
                 for k in range(seg_new[d], seg_end[d]):
@@ -452,22 +451,29 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                             local[s] = -1
                             nv -= 1
                 continue
+            if (n_classes + class_room > certs.shape[0] or 2 * (n_classes + class_room) > slots.shape[0]
+                    or n_memo == child_class.shape[0] or 2 * (n_memo + 1) > memo_keys.shape[0]
+                    or 2 * (n_keys + key_room) > ext_keys.shape[0]):
+                state[0], state[1], state[2], state[3] = r, d, size, nv
+                state[4], state[5], state[6] = n_classes, n_memo, n_keys
+                return 1
             b = buf[seg_pos[d]]
             seg_pos[d] += 1
             if track:
                 available[b] = False
             leaves = 2  # degree-1 sites and odd-degree sites of the cluster with b, from those without it
             odd = 2
+            key = -1  # and its extension key
             if size > 0:
-                leaves = _leaves_after(b, refc, bond_u, bond_v, path_leaves[size])
-                odd = path_odd[size] + 2 - 2 * (refc[bond_u[b]] & 1) - 2 * (refc[bond_v[b]] & 1)
+                u = bond_u[b]
+                v = bond_v[b]
+                leaves, key = _extension(refc[u], refc[v], path_labels[size, local[u]], path_labels[size, local[v]],
+                                         site_col[u], site_col[v], nv, path_leaves[size], path_class[size],
+                                         bond_col[b])
+                odd = path_odd[size] + 2 - 2 * (refc[u] & 1) - 2 * (refc[v] & 1)
             if insertions is not None and 2 * (size + 1) > max_bonds and (
                     size + 1 + (leaves - insertions + 1) // 2 > max_bonds):
                 continue  # skip, without visiting, a cluster that neither counts nor can grow into one that counts
-            key = -1
-            if star is None and size > 0:
-                key = _extension_key(b, path_class[size], path_labels, size, local, refc, bond_u, bond_v, bond_col,
-                                     site_col, nv)
             nv_before = nv
             cluster[size] = b
             size += 1
@@ -477,35 +483,35 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                     verts[nv] = s
                     nv += 1
                 refc[s] += 1
-            if key >= 0:
-                slot = _probe(memo_keys, key)
-                if memo_keys[slot] != key:
-                    (memo_keys, memo_entry, n_memo, child_class, child_labels, certs, lengths, counts, class_hash,
-                     slots, n_classes) = _memo_miss(key, slot, memo_keys, memo_entry, n_memo, child_class,
-                                                    child_labels, ws, certs, lengths, counts, class_hash, slots,
-                                                    n_classes)
-                    slot = _probe(memo_keys, key)
-                e = memo_entry[slot]
-                path_class[size] = child_class[e]
-                for v in range(nv_before):
-                    path_labels[size, v] = child_labels[e, path_labels[size - 1, v]]
-                if nv > nv_before:
-                    path_labels[size, nv_before] = child_labels[e, nv_before]
-            elif star is None:  # the root bond
-                for k in range(nv):
-                    vcol[k] = site_col[verts[k]]
-                _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
-                path_class[size], n_classes = _class_index(ws, best, nv, size, certs, lengths, counts, class_hash,
-                                                           slots, n_classes)
-                if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-                    certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots,
-                                                                           n_classes)
-                for v in range(nv):
-                    path_labels[size, v] = labels[v]
-            record = True
-            grow = size < max_bonds
             path_leaves[size] = leaves
             path_odd[size] = odd
+            if star is None:
+                # the class and canonical labelling: from the memo, or for the root bond by canonicalising it
+                if size > 1:
+                    mask = memo_keys.shape[0] - 1
+                    slot = np.int64(_splitmix(np.uint64(key)) & np.uint64(mask))
+                    while memo_keys[slot] >= 0 and memo_keys[slot] != key:
+                        slot = (slot + 1) & mask
+                    if memo_keys[slot] < 0:
+                        n_memo, n_classes = _memo_add(key, slot, memo_keys, memo_entry, n_memo, child_class,
+                                                      child_labels, ws, certs, lengths, counts, class_hash, slots,
+                                                      n_classes)
+                    e = memo_entry[slot]
+                    path_class[size] = child_class[e]
+                    for x in range(nv_before):
+                        path_labels[size, x] = child_labels[e, path_labels[size - 1, x]]
+                    if nv > nv_before:
+                        path_labels[size, nv_before] = child_labels[e, nv_before]
+                else:
+                    for k in range(nv):
+                        vcol[k] = site_col[verts[k]]
+                    _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
+                    path_class[size], n_classes = _class_index(ws, best, nv, size, certs, lengths, counts,
+                                                               class_hash, slots, n_classes)
+                    for x in range(nv):
+                        path_labels[size, x] = labels[x]
+            record = True
+            grow = size < max_bonds
             if insertions is not None and size + (leaves - insertions + 1) // 2 > max_bonds:
                 grow = False
             if star is not None:
@@ -540,18 +546,15 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                             cluster[size] = f
                             _local_edges(size + 1, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                             if _is_biconnected(nv, size + 1, eu, ev, scratch):
-                                n_classes, certs, lengths, counts, class_hash, slots = _tally(
-                                    ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths, counts, class_hash,
-                                    slots, n_classes, per_size)
-            if star is not None:
+                                n_classes = _tally(ws, best, vcol, site_col, verts, nv, size + 1, certs, lengths,
+                                                   counts, class_hash, slots, n_classes, per_size)
                 if record:
                     _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec)
                     if size > 1:
                         record = _is_biconnected(nv, size, eu, ev, scratch)
                 if record:
-                    n_classes, certs, lengths, counts, class_hash, slots = _tally(
-                        ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash, slots,
-                        n_classes, per_size)
+                    n_classes = _tally(ws, best, vcol, site_col, verts, nv, size, certs, lengths, counts, class_hash,
+                                       slots, n_classes, per_size)
             else:
                 if insertions is not None and 2 * size > max_bonds:  # else E + b - P_k <= 2 E <= max_bonds
                     record = size + _uncovered_bridges_bound(nv, size, leaves, odd, insertions) <= max_bonds
@@ -562,23 +565,32 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 # the top layer: a cluster one bond larger is this one's class with a bond added at two canonical
                 # labels (or at one and a new site), so it is counted under that key, not classified itself
                 grow = False
-                while 2 * (n_extensions + seg_end[d] - seg_pos[d] + 2 * max_deg) > ext_keys.shape[0]:
-                    ext_keys, ext_counts = _grown_extensions(ext_keys, ext_counts)  # room for every new key below
-                for q in range(seg_pos[d], seg_end[d]):  # the bonds still untried at this level
-                    if _leaves_after(buf[q], refc, bond_u, bond_v, leaves) <= max_top_leaves:
-                        n_extensions += _count_key(ext_keys, ext_counts, _extension_key(
-                            buf[q], path_class[size], path_labels, size, local, refc, bond_u, bond_v, bond_col,
-                            site_col, nv))
-                for s in (bond_u[b], bond_v[b]):  # and those at a site that b added, not reached yet
+                k = seg_end[d]  # after the bonds still untried at this level, those at a site that b added
+                for s in (bond_u[b], bond_v[b]):
                     if local[s] < nv_before:
                         continue
                     for p in range(inc_ptr[s], inc_ptr[s + 1]):
                         f = inc_bond[p]
-                        if f > root and not reached[f] and _leaves_after(f, refc, bond_u, bond_v,
-                                                                         leaves) <= max_top_leaves:
-                            n_extensions += _count_key(ext_keys, ext_counts, _extension_key(
-                                f, path_class[size], path_labels, size, local, refc, bond_u, bond_v, bond_col,
-                                site_col, nv))
+                        if f > root and not reached[f]:
+                            buf[k] = f
+                            k += 1
+                mask = ext_keys.shape[0] - 1
+                for q in range(seg_pos[d], k):
+                    f = buf[q]
+                    u = bond_u[f]
+                    v = bond_v[f]
+                    after, top_key = _extension(refc[u], refc[v], path_labels[size, local[u]],
+                                                path_labels[size, local[v]], site_col[u], site_col[v], nv, leaves,
+                                                path_class[size], bond_col[f])
+                    if after > max_top_leaves:
+                        continue
+                    slot = np.int64(_splitmix(np.uint64(top_key)) & np.uint64(mask))
+                    while ext_keys[slot] >= 0 and ext_keys[slot] != top_key:
+                        slot = (slot + 1) & mask
+                    ext_counts[slot] += 1
+                    if ext_keys[slot] < 0:
+                        ext_keys[slot] = top_key
+                        n_keys += 1
             if grow:
                 ns = seg_end[d]
                 k = ns
@@ -610,11 +622,10 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                         local[s] = -1
                         nv -= 1
         reached[root] = False
-    n_classes, certs, lengths, counts, class_hash, slots = _tally_extensions(
-        ext_keys, ext_counts, max_bonds, -1 if insertions is None else insertions, ws, certs, lengths, counts,
-        class_hash, slots, n_classes, per_size)
-    kept = counts[:n_classes] > 0  # classes met only as the smaller cluster of a key may have none
-    return certs[:n_classes][kept], lengths[:n_classes][kept], counts[:n_classes][kept], per_size
+        r += 1
+    state[0], state[1], state[2], state[3] = r, d, size, nv
+    state[4], state[5], state[6] = n_classes, n_memo, n_keys
+    return 0
 
 
 @njit(cache=True, inline="always")
