@@ -180,8 +180,11 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
         lnz0 = float(lnz0) / float(divisor)
         coefs = {k: [Fraction(c) / Fraction(divisor) for c in v] for k, v in raw.items()}
     else:
-        lnz0 = sympy.simplify(lnz0 / divisor)
-        coefs = {k: [sympy.simplify(c / divisor) for c in v] for k, v in raw.items()}
+        # polynomials over a number are expanded, over a polynomial (per magnetic site) put over it in lowest
+        # terms; sympy.simplify's search did the same but grew fast with the size of the polynomials
+        tidy = sympy.expand if sympy.sympify(divisor).is_number else sympy.cancel
+        lnz0 = tidy(lnz0 / divisor)
+        coefs = {k: [tidy(c / divisor) for c in v] for k, v in raw.items()}
     lnz = coefs.get("lnz")
     order = ls.order
     if lnz is None:
