@@ -6,7 +6,7 @@ the enumeration time grows from the last probe's by the larger of the growth fac
 of the probe's time (the census also walks clusters it drops); the kernel time of a cluster is a measured overhead
 plus a measured unit times the square of its largest S^z sector (:func:`kernel_cost_model`); the memory is
 the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
-blocks) per worker.  Clusters that the run never diagonalises are left out of both: trees (every bond a
+blocks) per worker, plus the main process's graph classes and exact weights (_CLASS_BYTES per class).  Clusters that the run never diagonalises are left out of both: trees (every bond a
 bridge) of `order` bonds, of order - 1 >= 2 bonds and of order - 2 >= 3 bonds get their T chi and M4 weights
 from the bridge factorisation (hte.bridge_factorisation; :func:`diagonalised` says where this errs), and with
 ln Z only a tree of E bonds first contributes at beta^(2E) (every bridge appears twice), so the largest
@@ -30,6 +30,11 @@ _PROBE_CLUSTERS = 200_000
 _STEADY_S = 0.05  # probe censuses shorter than this are too noisy for a time growth factor
 _PROBE_SECTOR = 2000  # the kernel-cost probe's largest sector (about 0.1-0.5 s at orders 10-18)
 _BLOCK_BYTES = 3 * 2**20 * 8  # the kernel's propagation buffers (hte/exact.py)
+# the main process: Python, numpy, numba and hte, then per graph class its census entry, valued graphs and exact
+# weights; measured on the symbolic layered kagome (ln Z and T chi) at orders 9 and 10, 2026-12-02: 1.6 GiB for
+# 2.1e5 classes, 8.3 GiB for 1.17e6, i.e. about 7.2 KiB per class on about 0.2 GiB
+_BASE_BYTES = 200 * 2**20
+_CLASS_BYTES = 8 * 2**10
 
 
 @dataclass
@@ -44,6 +49,7 @@ class RunEstimate:
     largest_sector: int
     memory_bytes: int
     extrapolated_from: int
+    main_bytes: int = 0  # the main process (graph classes and their weights)
 
     @property
     def seconds(self) -> float:
@@ -54,7 +60,7 @@ class RunEstimate:
                 f"{self.graph_classes:.3g} graph classes (counted to {self.extrapolated_from} bonds, extrapolated "
                 f"beyond); enumeration ~{_duration(self.enumeration_s)}, cluster series ~{_duration(self.kernel_s)}; "
                 f"largest S^z sector {self.largest_sector:,} states, kernel memory ~{self.memory_bytes / 2**30:.2f} GiB "
-                "per worker")
+                f"per worker, main process ~{self.main_bytes / 2**30:.1f} GiB")
 
 
 def _duration(seconds: float) -> str:
@@ -145,7 +151,7 @@ def estimate_run(spec, model, order: int, workers: int = 1, quantities=QUANTITIE
     top = largest_sector(order, twice_spin)
     memory = top * (order + 2) * 16 + _BLOCK_BYTES + top * 64
     return RunEstimate(order, int(total), int(n_classes), enum_s / max(workers, 1), kernel_s / max(workers, 1),
-                       top, int(memory), n)
+                       top, int(memory), n, int(_BASE_BYTES + n_classes * _CLASS_BYTES))
 
 
 def _path_seconds(n_sites: int, twice_spin: int, order: int, diagonal: bool = False) -> float:
@@ -215,8 +221,8 @@ def check_memory(estimate: RunEstimate, workers: int, limit_bytes: int | None = 
             f"{estimate.describe()}: far beyond a month on this machine. Lower --order, or add --force to try "
             "anyway (spread it over a cluster with --scheduler)")
     limit = limit_bytes or int(0.8 * available_memory())
-    need = estimate.memory_bytes * max(workers, 1)
+    need = estimate.memory_bytes * max(workers, 1) + estimate.main_bytes
     if need > limit:
         raise ResourceLimitError(
-            f"{estimate.describe()}; with {workers} worker(s) that is ~{need / 2**30:.1f} GiB, more than the "
+            f"{estimate.describe()}; with {workers} worker(s) that is ~{need / 2**30:.1f} GiB in all, more than the "
             f"{limit / 2**30:.1f} GiB available. Lower --order, use fewer --workers, or add --force to try anyway.")

@@ -63,3 +63,19 @@ def test_check_memory_refuses_runs_beyond_the_memory_limit_and_says_how_to_proce
         check_memory(_estimate(2**30, 60.0), workers=4, limit_bytes=3 * 2**30)
     with pytest.raises(ResourceLimitError, match="--force"):
         check_memory(_estimate(2**20, 60.0 * 24 * 3600), workers=1, limit_bytes=3 * 2**30)
+
+
+def test_check_memory_counts_the_main_process_as_well_as_the_workers():
+    small_kernel = _estimate(2**20, 60.0)
+    check_memory(small_kernel, workers=2, limit_bytes=3 * 2**30)
+    small_kernel.main_bytes = 4 * 2**30  # the graph classes and their weights alone exceed the limit
+    with pytest.raises(ResourceLimitError, match="in all"):
+        check_memory(small_kernel, workers=2, limit_bytes=3 * 2**30)
+
+
+def test_the_main_process_memory_grows_with_the_graph_classes():
+    spec = load_lattice("kagome")
+    model = build_model(spec)
+    smaller, larger = (estimate_run(spec, model, order) for order in (6, 9))
+    assert larger.graph_classes > smaller.graph_classes
+    assert larger.main_bytes > smaller.main_bytes > 0
