@@ -6,11 +6,12 @@ the enumeration time grows from the last probe's by the larger of the growth fac
 of the probe's time (the census also walks clusters it drops); the kernel time of a cluster is a measured overhead
 plus a measured unit times the square of its largest S^z sector (:func:`kernel_cost_model`); the memory is
 the kernel's working set for the largest diagonalised cluster (sparse integer sector matrix and propagation
-blocks) per worker, plus the main process's graph classes and exact weights (_CLASS_BYTES per class).  Clusters that the run never diagonalises are left out of both: trees (every bond a
-bridge) of `order` bonds, of order - 1 >= 2 bonds and of order - 2 >= 3 bonds get their T chi and M4 weights
-from the bridge factorisation (hte.bridge_factorisation; :func:`diagonalised` says where this errs), and with
-ln Z only a tree of E bonds first contributes at beta^(2E) (every bridge appears twice), so the largest
-diagonalised cluster has `order` sites rather than order + 1.  Expect the time to be right within a factor of a
+blocks) per worker, plus the main process's graph classes and exact weights (_CLASS_BYTES per class).
+Clusters that the run never diagonalises are left out of both: trees (every bond a bridge) of `order` bonds,
+of order - 1 >= 2 bonds and of order - 2 >= 3 bonds get their T chi and M4 weights from the bridge
+factorisation (hte.bridge_factorisation; :func:`diagonalised` says where this errs), and with ln Z only a tree
+of E bonds first contributes at beta^(2E) (every bridge appears twice), so the largest diagonalised cluster has
+`order` sites rather than order + 1.  Expect the time to be right within a factor of a
 few; the memory bound is the one that matters for refusing a run.
 """
 
@@ -59,8 +60,8 @@ class RunEstimate:
         return (f"estimate for order {self.order}: about {self.clusters:.3g} clusters per cell in "
                 f"{self.graph_classes:.3g} graph classes (counted to {self.extrapolated_from} bonds, extrapolated "
                 f"beyond); enumeration ~{_duration(self.enumeration_s)}, cluster series ~{_duration(self.kernel_s)}; "
-                f"largest S^z sector {self.largest_sector:,} states, kernel memory ~{self.memory_bytes / 2**30:.2f} GiB "
-                f"per worker, main process ~{self.main_bytes / 2**30:.1f} GiB")
+                f"largest S^z sector {self.largest_sector:,} states, kernel memory "
+                f"~{self.memory_bytes / 2**30:.2f} GiB per worker, main process ~{self.main_bytes / 2**30:.1f} GiB")
 
 
 def _duration(seconds: float) -> str:

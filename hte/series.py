@@ -181,7 +181,7 @@ def normalise(ls: LatticeSeries, *, lattice, model, per: str = "site") -> HTSeri
         coefs = {k: [Fraction(c) / Fraction(divisor) for c in v] for k, v in raw.items()}
     else:
         # polynomials over a number are expanded, over a polynomial (per magnetic site) put over it in lowest
-        # terms; sympy.simplify's search did the same but grew fast with the size of the polynomials
+        # terms (sympy.simplify, used before, took time that grew fast with the size of the polynomials)
         tidy = sympy.expand if sympy.sympify(divisor).is_number else sympy.cancel
         lnz0 = tidy(lnz0 / divisor)
         coefs = {k: [tidy(c / divisor) for c in v] for k, v in raw.items()}
