@@ -172,8 +172,10 @@ class WeightBook:
         todo = {}
         for vg in graphs:
             self.valued.setdefault(vg.key, vg)
-            if self.negligible(vg) or (self.factorised(vg) and not self._wants_rooted(vg)):
-                continue  # a factorised graph is still diagonalised when a larger one uses its rooted series
+            if not self._wants_rooted(vg) and (self.negligible(vg) or self.factorised(vg)):
+                # a factorised graph, or one whose own weights vanish, is still diagonalised when a larger one
+                # uses its rooted series (these vanish by other rules: one insertion sits at the root)
+                continue
             if vg.key not in self.raw or (self._wants_rooted(vg) and vg.key not in self.rooted.indexed):
                 todo[vg.key] = vg
         if not todo:

@@ -292,3 +292,23 @@ def test_cold_runs_reproduce_the_shipped_tables(name, order):
 @pytest.mark.parametrize("name, order", [("chain", 16), ("square", 10), ("kagome", 10)])
 def test_cold_runs_reproduce_the_shipped_tables_at_their_orders(name, order):
     _equals_shipped_table(name, order)
+
+
+def test_rooted_series_of_a_graph_whose_own_weights_vanish_are_still_computed():
+    # A windmill of four triangles at one centre with a pendant bond there: 13 bonds, one bridge, so at order 13
+    # with ln Z and T chi (two insertions) its T chi weight factorises across the bridge.  The half with the
+    # windmill has as a rooted subgraph the star of its eight spokes; the star's own weights start at
+    # beta^(2*8 - 2) = beta^14 (every bond a bridge, one path of two spokes covered), so they vanish to this order,
+    # yet its rooted series enters the linked rooted weight of the half.  Exact identity: the factorised weight
+    # must equal the one found by diagonalising the graph and subtracting all its subgraphs.
+    j = (Fraction(1), Fraction(1))
+    windmill = [(0, a, j) for a in range(1, 9)] + [(a, a + 1, j) for a in (1, 3, 5, 7)]
+    graph = make_valued(10, [(HALF, Fraction(0))] * 10, windmill + [(0, 9, j)])
+    quantities = ("lnz", "m2")
+    book = WeightBook(13, quantities=quantities)
+    book.ensure_weights([graph])
+    assert book.factorised(graph)  # the route under test was taken
+    brute = WeightBook(13, quantities=quantities, bridge_factorisation=False)
+    brute.ensure_weights([graph])
+    assert book.weight(graph.key)["m2"] == brute.weight(graph.key)["m2"]
+    assert book.weight(graph.key)["m2"][13] != 0
