@@ -109,7 +109,7 @@ def _local_edges(size, cluster, local, bond_u, bond_v, bond_col, eu, ev, ec):
 @njit(cache=True, inline="always")
 def _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots, n_classes):
     """Graph class of the graph written into the workspace inputs (vertex colours and local edges), added with
-    count 0 if new (the table must have room for one more: :func:`_with_room`); returns (class, number of
+    count 0 if new (the table must have room for it: :func:`_with_room`); returns (class, number of
     classes).  The canonical labelling stays in the workspace until the next call."""
     length = canonical_into(ws, nv, size)
     h = _certificate_hash(best, length)
@@ -125,11 +125,11 @@ def _class_index(ws, best, nv, size, certs, lengths, counts, class_hash, slots, 
 
 
 @njit(cache=True)
-def _with_room(certs, lengths, counts, class_hash, slots, n_classes):
-    """The class table with room for one more class and its slot table at most half full."""
-    if n_classes == certs.shape[0]:
+def _with_room(certs, lengths, counts, class_hash, slots, n_classes, room):
+    """The class table, holding n_classes, grown to take `room` more with its slot table at most half full."""
+    while n_classes + room > certs.shape[0]:
         certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
-    if 2 * n_classes > slots.shape[0]:
+    while 2 * (n_classes + room) > slots.shape[0]:
         slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
     return certs, lengths, counts, class_hash, slots
 
@@ -157,7 +157,7 @@ def _extension(refc_u, refc_v, label_u, label_v, colour_u, colour_v, nv, leaves,
 
     refc_* are the degrees of u and v in the current cluster (at least one positive), label_* their canonical
     labels (ignored for a site not in the cluster), colour_* their site colours.  Scalars only: array arguments
-    cost reference counting, which took most of the census's time in its innermost loops."""
+    cost reference counting, which took about half the census's time in its innermost loops."""
     if refc_u == 0:
         refc_u, refc_v = refc_v, refc_u
         label_u, label_v = label_v, label_u
@@ -270,8 +270,7 @@ def _tally_extensions(ext_keys, ext_counts, max_bonds, insertions, ws, certs, le
         k, n_classes = _class_index(ws, best, nv, m, certs, lengths, counts, class_hash, slots, n_classes)
         counts[k] += ext_counts[slot]
         per_size[m] += ext_counts[slot]
-        if n_classes == certs.shape[0] or 2 * n_classes > slots.shape[0]:
-            certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes)
+        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes, 1)
     return n_classes, certs, lengths, counts, class_hash, slots
 
 
@@ -377,10 +376,8 @@ def _enumerate(max_bonds, roots, bond_u, bond_v, bond_col, site_col, inc_ptr, in
                 path_labels, ws, scratch, certs, lengths, counts, class_hash, slots, per_size, memo_keys, memo_entry,
                 child_class, child_labels, ext_keys, ext_counts):
         n_classes, n_memo, n_keys = state[4], state[5], state[6]
-        while n_classes + class_room > certs.shape[0]:
-            certs, lengths, counts, class_hash = _grown_rows(certs, lengths, counts, class_hash)
-        while 2 * (n_classes + class_room) > slots.shape[0]:
-            slots = _grown_slots(class_hash, n_classes, 2 * slots.shape[0])
+        certs, lengths, counts, class_hash, slots = _with_room(certs, lengths, counts, class_hash, slots, n_classes,
+                                                               class_room)
         if n_memo == child_class.shape[0]:
             grown_class = np.empty(2 * n_memo, np.int64)
             grown_class[:n_memo] = child_class

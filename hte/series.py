@@ -21,6 +21,7 @@ from fractions import Fraction
 
 import sympy
 
+from hte.exact import QUANTITIES
 from hte.expansion import LatticeSeries
 
 PER_CHOICES = ("site", "cell", "magnetic")
@@ -263,4 +264,4 @@ def quantities_for(lnz_only: bool = False, m4: bool = True) -> tuple[str, ...]:
     """The additive quantities (names of :data:`hte.exact.QUANTITIES`) that ``lnz_only`` and ``m4`` ask for."""
     if lnz_only:
         return ("lnz",)
-    return ("lnz", "m2", "m4") if m4 else ("lnz", "m2")
+    return QUANTITIES if m4 else ("lnz", "m2")
