@@ -15,9 +15,10 @@ at h = 0 (odd terms vanish: H0 is invariant under the global spin flip, so secto
 Method of :func:`cluster_cumulants`: the moments :math:`t_{m,k} = \mathrm{Tr}_m H_0^k` are computed exactly for
 each sector m >= 0 as traces of powers of an integer matrix (a diagonal similarity transform of 4 L H0, see
 :mod:`hte.spin_matrices`), modulo primes below 2^26 with a numba kernel and Chinese remaindering
-(:mod:`hte.modular`); then the moments are turned into the three cumulant series with exact rationals.  Spin-1/2
-Heisenberg clusters of TOTAL_SPIN_MIN_SITES sites or more are traced instead over the highest-weight states of each
-total spin S, weighted by their multiplets (:mod:`hte.total_spin`); the moments are the same integers.
+(:mod:`hte.modular`); then the moments are turned into the three cumulant series with exact rationals.  Isotropic
+clusters (every bond Jxy = Jz, no anisotropy, any spins) of TOTAL_SPIN_MIN_STATES states or more are traced instead
+over the highest-weight states of each total spin S, weighted by their multiplets (:mod:`hte.total_spin`), when
+that is cheaper; the moments are the same integers.
 
 References (cited from memory)
 ------------------------------
@@ -52,10 +53,11 @@ from hte.spin_matrices import (
 _BLOCK_ENTRIES = 2**20  # unit vectors propagated together: dim * block <= this (3 float64 buffers, 24 MiB)
 _BLOCK_MAX = 64
 SYMMETRY_MIN_DIM = 64  # sectors this large use the cluster's symmetries; below, the search costs more than it saves
-# Spin-1/2 Heisenberg clusters this large may be traced over total-spin blocks (hte.total_spin), when the cost
-# model of _total_spin_pays favours them.  Measured on kagome, path and random clusters: below 13 sites the S^z
-# sectors with orbit reduction are as fast or faster; paths of 16 and 17 sites ran x4 and x6.5 faster in blocks.
-TOTAL_SPIN_MIN_SITES = 13
+# Isotropic clusters with this many states or more may be traced over total-spin blocks (hte.total_spin), when
+# the cost model of _total_spin_pays favours them.  Measured on kagome, path and random clusters: below 2^13
+# states (13 spins 1/2, 9 spins 1) the S^z sectors with orbit reduction are as fast or faster; spin-1/2 paths of
+# 16 and 17 sites ran x4 and x6.5 faster in blocks, spin-1 paths of 10 sites x7.
+TOTAL_SPIN_MIN_STATES = 2**13
 _DENSE_MAX_STATES = 2**13  # the dense reference refuses larger clusters (a 2**13 matrix takes 512 MiB)
 
 
@@ -201,7 +203,8 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     about (order/2) * nnz * d multiply-adds, nnz the number of nonzeros of H0 in the sector.
     """
     order = check_order(order)
-    if ham.n_sites >= TOTAL_SPIN_MIN_SITES and total_spin.applies(ham) and _total_spin_pays(ham):
+    if (prod(t + 1 for t in ham.twice_spins) >= TOTAL_SPIN_MIN_STATES and total_spin.applies(ham)
+            and _total_spin_pays(ham)):
         scale, sums = total_spin.total_spin_power_sums(ham, order)
         return cumulants_from_integer_moments(sums, scale, order)
     scale, traces = _integer_power_traces(ham, order)
@@ -214,18 +217,22 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
 
 
 def _total_spin_pays(ham: ClusterHamiltonian) -> bool:
-    """True when the total-spin blocks should be cheaper than the S^z sectors for this spin-1/2 Heisenberg cluster.
+    """True when the total-spin blocks should be cheaper than the S^z sectors for this isotropic cluster.
 
-    Per pair of powers and per prime, a sector costs about dim^2 (1 + E/2) / |G| multiply-adds (E bonds: a row
-    holds the diagonal and, on average, half the bonds' flips; G the symmetry group of the cluster, twice as large
-    at S^z = 0 with the spin flip), a block its dimension times its nonzeros (:func:`hte.total_spin.estimated_cost`).
-    The orbit reduction is taken as perfect, which favours the sectors for very symmetric clusters.  Checked on
-    7 clusters of 14-16 sites: the choice was right or within 20 % of the better route.
+    Per pair of powers and per prime, a sector costs about dim^2 (1 + F) / |G| multiply-adds: a row holds the
+    diagonal and F flips, F = sum_b 2 (2S_u)(2S_v) / ((2S_u + 1)(2S_v + 1)) on average (E/2 for E bonds between
+    spins 1/2), and G is the symmetry group of the cluster, twice as large at S^z = 0 with the spin flip.  A block
+    costs its dimension times its nonzeros (:func:`hte.total_spin.estimated_cost`).  The orbit reduction is taken
+    as perfect, which favours the sectors for very symmetric clusters.  Checked on spin-1/2 clusters of 14-16
+    sites and on paths, rings and trees of spins 1 to 5/2 (README): the choice was right or within a factor 2 of
+    the better route.
     """
     group = len(site_automorphisms(ham)) + 1
-    sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
-    sector_cost = sum(sector.dim**2 * (1 + len(ham.bonds) / 2) / (group * (2 if sector.twice_magnetization == 0
-                                                                             else 1)) for sector in sectors)
+    twice = ham.twice_spins
+    flips = sum(2 * twice[u] * twice[v] / ((twice[u] + 1) * (twice[v] + 1)) for u, v, _, _ in ham.bonds)
+    sectors = spin_sectors(twice, nonnegative_only=True)
+    sector_cost = sum(sector.dim**2 * (1 + flips) / (group * (2 if sector.twice_magnetization == 0 else 1))
+                      for sector in sectors)
     return total_spin.estimated_cost(ham) < sector_cost
 
 

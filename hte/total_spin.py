@@ -1,38 +1,54 @@
-r"""Exact power traces of spin-1/2 Heisenberg clusters over highest-weight states of total spin.
+r"""Exact power traces of isotropic clusters over the highest-weight states of each total spin, for any spins.
 
-For spin 1/2 and isotropic bonds, H0 = sum_b J_b S_u.S_v = sum_b J_b (P_b / 2 - 1/4), P_b the exchange of the
-bond's two spins.  By Schur-Weyl duality the 2^N states split into multiplets of total spin S, and the
-highest-weight states of spin S (one per multiplet, each standing for 2S + 1 states) carry the irreducible
-representation of the permutation group with the two-row Young diagram (N/2 + S, N/2 - S); the one-row diagram is
-the fully symmetric, ferromagnetic multiplet.  H0 acts there as the same combination of permutations, so with
-A = scale * H0 (the integer scaling of :mod:`hte.spin_matrices`) and A_S its matrix in that representation
+For isotropic bonds and no single-ion anisotropy, :math:`H_0 = \sum_b J_b\,\mathbf S_u\cdot\mathbf S_v` commutes
+with the total spin, so the states split into multiplets of total spin S whose 2S + 1 states share their
+energies.  With A = scale * H0 (the integer scaling of :mod:`hte.spin_matrices`) and A_S its matrix on the
+highest-weight states of spin S (one state per multiplet)
 
 .. math:: \sum_m (2m)^q\,\mathrm{Tr}_m A^k = \sum_S w_q(S)\,\mathrm{Tr}\,A_S^k,
           \qquad w_q(S) = \sum_{m=-S}^{S} (2m)^q .
 
-A_S has dimension C(N, N/2 - S) - C(N, N/2 - S - 1) against C(N, N/2 - S) states in the S^z = S sector: at
-S = 0 a factor N/2 + 1 fewer, and the kernel's cost grows with the square of the dimension.
+Basis (sequential coupling).  With the sites in a fixed order 0..N-1, a highest-weight state is a *path*
+:math:`(j_0 = 0, j_1, \dots, j_N = S)`, :math:`j_l` the total spin of sites 0..l-1, each step a coupling allowed
+by the triangle rule :math:`|j_l - s_l| \le j_{l+1} \le j_l + s_l`.  There are dim(S^z = S) - dim(S^z = S + 1)
+paths ending at S, against dim(S^z = S) states in the S^z = S sector; at S = 0 for spins 1/2 a factor N/2 + 1
+fewer, and more for larger spins.
 
-The representation is Young's seminormal form on standard tableaux.  For the adjacent transposition s_k of
-entries k and k + 1 of a standard tableau T: s_k T = T if they share a row, -T if they share a column, and
-otherwise, with T' the tableau with k and k + 1 exchanged and r = c(k+1) - c(k) the axial distance (contents
-c = column - row), s_k T = T / r + T' if r > 0 and s_k T = T / r + (1 - 1/r^2) T' if r < 0.  A transposition
-(i j), i < j, is s_i ... s_{j-2} s_{j-1} s_{j-2} ... s_i.  The form is a diagonal similarity C^{-1} O C of
-Young's orthogonal (symmetric) form, with c(T')^2 = c(T)^2 (1 - 1/r^2) for r > 0, which is what the symmetric
-splitting of :func:`hte.modular.power_traces_mod` needs.  Entries are rationals with denominators below N^2,
-used as residues modulo primes far larger; the traces are integers (differences of S^z-sector traces), bounded
-like those of :mod:`hte.exact`, and rebuilt by Chinese remaindering.
+Exact rational vectors.  In a spin-T/2 space the lowered states :math:`f_t = (S^-)^t |T/2, T/2\rangle`,
+t = 0..T, have :math:`S^- f_t = f_{t+1}`, :math:`S^+ f_t = t(T - t + 1) f_{t-1}`, :math:`2S^z f_t = (T - 2t) f_t`
+and :math:`\langle f_t, f_t\rangle = \varphi(T, t) = t!\,T!/(T - t)!`.  The highest-weight state of spin T/2 in
+(spin T1/2) x (spin T2/2) is :math:`\sum_{t=0}^{n} c_t f_t \otimes g_{n-t}`, n = (T1 + T2 - T)/2, with
+:math:`c_0 = 1` and :math:`c_{t+1} = -c_t (n - t)(T_2 - n + t + 1) / ((t + 1)(T_1 - t))` (what S^+ = 0 asks).
+A path's vector couples its steps this way, one site at a time; its squared norm is the product over the steps
+of :math:`\kappa = \sum_t c_t^2 \varphi(T_1, t)\varphi(T_2, n - t)`.  Paths are orthogonal, so in this basis A_S
+is C^{-1} (symmetric) C with c^2 = the squared norms: the symmetric splitting of
+:func:`hte.modular.power_traces_mod` applies.
+
+Operators.  S_k . S_{k+1} for two sites adjacent in the order changes only j_{k+1}, with coefficients that depend
+on (j_k, s_k, s_{k+1}, j_{k+2}); exchanging the order of the two sites likewise maps the paths of one order to
+those of the other.  Both small rational matrices are computed exactly (Fractions) in the space
+(spin j_k) x (spin s_k) x (spin s_{k+1}), as projections on the orthogonal step vectors; they hold for the whole
+path because the later couplings act through the total lowering operator of sites 0..k+1, which commutes with
+both.  A bond (u, v) further apart is the adjacent bond conjugated by the chain of exchanges that brings v next
+to u; the sites are relabelled first so that bonded sites are close (reverse Cuthill-McKee).  Entries are
+rationals with small denominators, used as residues modulo primes below 2^26; the traces are integers
+(differences of S^z-sector traces, which are integers in the gauge of :mod:`hte.spin_matrices`), bounded by
+dim * R^k like those of :mod:`hte.exact`, and rebuilt by Chinese remaindering.  Modulo a prime the subspace
+relations hold exactly, so the residues are those of the integer traces.
 
 References (cited from memory)
 ------------------------------
-.. [1] A. Young, Proc. London Math. Soc. (2) 34, 196 (1932) (seminormal and orthogonal forms).
-.. [2] B. E. Sagan, The Symmetric Group, 2nd ed. (Springer, 2001), ch. 2-3 (standard tableaux, axial distance).
+.. [1] A. R. Edmonds, Angular Momentum in Quantum Mechanics (Princeton University Press, 1957), ch. 3 and 6:
+       coupling of angular momenta, sequential (genealogical) coupling schemes.
+.. [2] J. J. Sakurai, Modern Quantum Mechanics (Addison-Wesley, 1994), sec. 3.5: the ladder operators.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from fractions import Fraction
 from functools import lru_cache
+from math import prod
 
 import numpy as np
 import scipy.sparse as sparse
@@ -40,162 +56,267 @@ import scipy.sparse as sparse
 from hte.modular import crt_signed, power_traces_mod, prime_bits_for, primes_exceeding, symmetric_residues
 from hte.spin_matrices import integer_couplings
 
-HALF = Fraction(1, 2)
-
 
 def applies(ham) -> bool:
-    """True for clusters this module handles: every spin 1/2, every bond isotropic (Jxy = Jz), no anisotropy."""
-    return (all(s == HALF for s in ham.spins) and all(jxy == jz for _, _, jxy, jz in ham.bonds)
-            and not any(ham.anisotropy))
+    """True for clusters this module handles: every bond isotropic (Jxy = Jz) and no single-ion anisotropy."""
+    return all(jxy == jz for _, _, jxy, jz in ham.bonds) and not any(ham.anisotropy)
 
 
-@lru_cache(maxsize=64)
-def standard_tableaux(n: int, lower: int) -> tuple[tuple[int, ...], ...]:
-    """Standard tableaux of the two-row shape (n - lower, lower), each as the row (0 or 1) of entries 0..n-1."""
-    found = []
-
-    def extend(rows, upper_count, lower_count):
-        if len(rows) == n:
-            found.append(tuple(rows))
-            return
-        if upper_count < n - lower:
-            extend(rows + [0], upper_count + 1, lower_count)
-        if lower_count < lower and lower_count < upper_count:
-            extend(rows + [1], upper_count, lower_count + 1)
-
-    extend([], 0, 0)
-    return tuple(found)
+def multiplet_weight(twice_s: int, q: int) -> int:
+    """w_q(S) = sum_{m=-S..S} (2m)^q (w_0 = 2S + 1, the multiplet's size)."""
+    return sum((2 * m2 - twice_s) ** q for m2 in range(twice_s + 1))
 
 
-def _columns(rows: tuple[int, ...]) -> list[int]:
-    seen = [0, 0]
-    columns = []
-    for r in rows:
-        columns.append(seen[r])
-        seen[r] += 1
-    return columns
+# --- one coupling step, exactly -------------------------------------------------------------------------------
 
 
-@lru_cache(maxsize=64)
-def _adjacent_actions(n: int, lower: int):
-    """For each k: (rows, cols, values) of the seminormal matrix of s_k (column = tableau acted on), and the
-    squared gauge c(T)^2 of every tableau (Fractions)."""
-    tableaux = standard_tableaux(n, lower)
-    index = {t: i for i, t in enumerate(tableaux)}
-    actions = []
-    pairs = []  # (T, T', factor): c(T')^2 = c(T)^2 * factor
-    for k in range(n - 1):
-        rows, cols, values = [], [], []
-        for t, tableau in enumerate(tableaux):
-            if tableau[k] == tableau[k + 1]:
-                rows.append(t), cols.append(t), values.append(Fraction(1))
-                continue
-            column = _columns(tableau)
-            if column[k] == column[k + 1]:
-                rows.append(t), cols.append(t), values.append(Fraction(-1))
-                continue
-            axial = (column[k + 1] - tableau[k + 1]) - (column[k] - tableau[k])
-            swapped = list(tableau)
-            swapped[k], swapped[k + 1] = swapped[k + 1], swapped[k]
-            partner = index[tuple(swapped)]
-            rows.append(t), cols.append(t), values.append(Fraction(1, axial))
-            rows.append(partner), cols.append(t)
-            if axial > 0:
-                values.append(Fraction(1))
-                pairs.append((t, partner, 1 - Fraction(1, axial * axial)))
-            else:
-                values.append(1 - Fraction(1, axial * axial))
-        actions.append((np.array(rows), np.array(cols), values))
-    return actions, _gauge(len(tableaux), pairs)
+def _lowered_norm(twice: int, t: int) -> int:
+    """phi(T, t) = <f_t, f_t> = t! T! / (T - t)! for the lowered states of a unit highest-weight state."""
+    return prod(r * (twice - r + 1) for r in range(1, t + 1))
 
 
-def _gauge(size: int, pairs) -> list[Fraction]:
-    """c(T)^2 from the pair relations, spreading from the first tableau; inconsistent relations raise."""
-    links: list[list[tuple[int, Fraction]]] = [[] for _ in range(size)]
-    for t, partner, factor in pairs:
-        links[t].append((partner, factor))
-        links[partner].append((t, 1 / factor))
-    squares: list[Fraction | None] = [None] * size
-    squares[0] = Fraction(1)
-    stack = [0]
-    while stack:
-        t = stack.pop()
-        for other, factor in links[t]:
-            value = squares[t] * factor
-            if squares[other] is None:
-                squares[other] = value
-                stack.append(other)
-            elif squares[other] != value:
-                raise ArithmeticError("seminormal gauge is inconsistent")
-    if any(s is None for s in squares):
-        raise ArithmeticError("seminormal gauge does not reach every tableau")
-    return squares
+@lru_cache(maxsize=None)
+def _coupling(twice_1: int, twice_2: int, twice_total: int) -> tuple[Fraction, ...]:
+    """c_0..c_n: the highest-weight state of spin T/2 in (T1/2) x (T2/2) is sum_t c_t f_t (x) g_{n-t}."""
+    n = (twice_1 + twice_2 - twice_total) // 2
+    coefficients = [Fraction(1)]
+    for t in range(n):
+        coefficients.append(-coefficients[-1] * (n - t) * (twice_2 - n + t + 1) / ((t + 1) * (twice_1 - t)))
+    return tuple(coefficients)
+
+
+@lru_cache(maxsize=None)
+def _step_norm(twice_1: int, twice_2: int, twice_total: int) -> Fraction:
+    """kappa: the squared norm of the coupled highest-weight state per unit squared norm of the first factor."""
+    n = (twice_1 + twice_2 - twice_total) // 2
+    return sum(c * c * _lowered_norm(twice_1, t) * _lowered_norm(twice_2, n - t)
+               for t, c in enumerate(_coupling(twice_1, twice_2, twice_total)))
+
+
+def _couplings_allowed(twice_1: int, twice_2: int) -> range:
+    """Twice the total spins in (T1/2) x (T2/2): |T1 - T2|, ..., T1 + T2 in steps of 2."""
+    return range(abs(twice_1 - twice_2), twice_1 + twice_2 + 1, 2)
+
+
+def _step_vector(j0: int, a: int, b: int, j: int, total: int) -> dict[tuple[int, int, int], Fraction]:
+    """The highest-weight state of spin total/2 in ((j0 x a) -> j) x b, on the lowered states (t0, ta, tb)."""
+    n1 = (j0 + a - j) // 2
+    lowered = [{(t, n1 - t): c for t, c in enumerate(_coupling(j0, a, j))}]
+    n2 = (j + b - total) // 2
+    for _ in range(n2):
+        following: dict[tuple[int, int], Fraction] = {}
+        for (t0, ta), x in lowered[-1].items():
+            if t0 < j0:
+                following[t0 + 1, ta] = following.get((t0 + 1, ta), 0) + x
+            if ta < a:
+                following[t0, ta + 1] = following.get((t0, ta + 1), 0) + x
+        lowered.append(following)
+    vector: dict[tuple[int, int, int], Fraction] = {}
+    for u, d in enumerate(_coupling(j, b, total)):
+        for (t0, ta), x in lowered[u].items():
+            key = (t0, ta, n2 - u)
+            vector[key] = vector.get(key, 0) + d * x
+    return {key: x for key, x in vector.items() if x}
+
+
+def _dot(vector, a: int, b: int) -> dict[tuple[int, int, int], Fraction]:
+    """S_a . S_b = S^z_a S^z_b + (S^+_a S^-_b + S^-_a S^+_b) / 2 on a vector over (t0, ta, tb)."""
+    result: dict[tuple[int, int, int], Fraction] = {}
+
+    def add(key, value):
+        result[key] = result.get(key, 0) + value
+
+    for (t0, ta, tb), x in vector.items():
+        add((t0, ta, tb), x * Fraction((a - 2 * ta) * (b - 2 * tb), 4))
+        if ta > 0 and tb < b:
+            add((t0, ta - 1, tb + 1), x * Fraction(ta * (a - ta + 1), 2))
+        if tb > 0 and ta < a:
+            add((t0, ta + 1, tb - 1), x * Fraction(tb * (b - tb + 1), 2))
+    return result
+
+
+def _project(vector, basis: dict[int, dict], twice: tuple[int, int, int]) -> tuple[tuple[int, Fraction], ...]:
+    """Coefficients of ``vector`` on the orthogonal step vectors ``basis`` ({j: vector}); the inner product
+    weighs (t0, ta, tb) by phi(j0, t0) phi(a, ta) phi(b, tb).  Raises if ``vector`` is not in their span."""
+    def inner(u, v):
+        return sum(x * v[key] * prod(_lowered_norm(t, k) for t, k in zip(twice, key)) for key, x in u.items()
+                   if key in v)
+
+    coefficients = tuple((j, inner(v, vector) / inner(v, v)) for j, v in basis.items())
+    rest = dict(vector)
+    for j, c in coefficients:
+        for key, x in basis[j].items():
+            rest[key] = rest.get(key, 0) - c * x
+    if any(rest.values()):
+        raise ArithmeticError("a coupled-basis operator left the span of its step vectors")
+    return tuple((j, c) for j, c in coefficients if c)
+
+
+def _intermediates(j0: int, a: int, b: int, total: int) -> list[int]:
+    """The spins j of ((j0 x a) -> j) x b -> total allowed by both triangle rules (twice, ascending)."""
+    return [j for j in _couplings_allowed(j0, a) if total in _couplings_allowed(j, b)]
+
+
+@lru_cache(maxsize=None)
+def _local_bond(j0: int, a: int, b: int, total: int) -> dict[int, tuple[tuple[int, Fraction], ...]]:
+    """S_a . S_b on the paths through (j0, j, total): {j: ((j', coefficient), ...)}."""
+    basis = {j: _step_vector(j0, a, b, j, total) for j in _intermediates(j0, a, b, total)}
+    return {j: _project(_dot(v, a, b), basis, (j0, a, b)) for j, v in basis.items()}
+
+
+@lru_cache(maxsize=None)
+def _local_exchange(j0: int, a: int, b: int, total: int) -> dict[int, tuple[tuple[int, Fraction], ...]]:
+    """The exchange of the two sites, from the paths through (j0, j, total) with site spins (a, b) in this
+    order to those with (b, a): {j: ((j', coefficient), ...)}."""
+    target = {j: _step_vector(j0, b, a, j, total) for j in _intermediates(j0, b, a, total)}
+    return {j: _project({(t0, tb, ta): x for (t0, ta, tb), x in _step_vector(j0, a, b, j, total).items()},
+                        target, (j0, b, a))
+            for j in _intermediates(j0, a, b, total)}
+
+
+# --- the paths of one site order -------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Paths:
+    """The highest-weight paths of total spin ``twice_total``/2 for sites of spins ``twice_spins``/2 in order.
+
+    ``levels[p, l]`` is twice j_l of path p (l = 0..N, lexicographic order); a path's index is
+    sum_l offsets[l][j_{l-1}, j_l] (l = 1..N), ``offsets[0]`` unused.
+    """
+
+    twice_spins: tuple[int, ...]
+    twice_total: int
+    levels: np.ndarray
+    offsets: tuple[np.ndarray, ...]
+
+    @property
+    def size(self) -> int:
+        return self.levels.shape[0]
+
+
+@lru_cache(maxsize=256)
+def _paths(twice_spins: tuple[int, ...], twice_total: int) -> _Paths:
+    n = len(twice_spins)
+    tops = np.concatenate([[0], np.cumsum(twice_spins)]).astype(int)
+    counts = [np.zeros(top + 1, dtype=np.int64) for top in tops]
+    if twice_total <= tops[n]:
+        counts[n][twice_total] = 1
+    offsets = [np.zeros((1, 1), dtype=np.int64)]
+    for level in range(n - 1, -1, -1):
+        for j in range(tops[level] + 1):
+            counts[level][j] = sum(counts[level + 1][k] for k in _couplings_allowed(j, twice_spins[level]))
+    children = []
+    for level in range(n):
+        table = np.zeros((tops[level] + 1, tops[level + 1] + 1), dtype=np.int64)
+        kids = np.zeros((tops[level] + 1, twice_spins[level] + 1), dtype=np.int64)
+        n_kids = np.zeros(tops[level] + 1, dtype=np.int64)
+        for j in range(tops[level] + 1):
+            running = 0
+            for k in _couplings_allowed(j, twice_spins[level]):
+                table[j, k] = running
+                running += counts[level + 1][k]
+                if counts[level + 1][k]:
+                    kids[j, n_kids[j]] = k
+                    n_kids[j] += 1
+        offsets.append(table)
+        children.append((kids, n_kids))
+    levels = np.zeros((1 if counts[0][0] else 0, 1), dtype=np.int64)
+    for kids, n_kids in children:
+        column = levels[:, -1]
+        repeat = n_kids[column]
+        parents = np.repeat(np.arange(levels.shape[0]), repeat)
+        rank = np.arange(parents.size) - np.repeat(np.cumsum(repeat) - repeat, repeat)
+        levels = np.column_stack([levels[parents], kids[column[parents], rank]])
+    return _Paths(twice_spins, twice_total, levels, tuple(offsets))
 
 
 def _residue(value: Fraction, prime: int) -> int:
     return value.numerator % prime * pow(value.denominator % prime, -1, prime) % prime
 
 
-@lru_cache(maxsize=256)
-def _adjacent_mod(n: int, lower: int, prime: int | None) -> tuple[sparse.csr_matrix, ...]:
-    """The seminormal matrices of s_0 .. s_{n-2} modulo `prime` (int64 residues in [0, p)); with prime None,
-    their patterns (every nonzero entry 1)."""
-    actions, _ = _adjacent_actions(n, lower)
-    size = len(standard_tableaux(n, lower))
-    matrices = []
-    for rows, cols, values in actions:
-        if prime is None:
-            data = np.ones(len(values), dtype=np.int64)
-        else:
-            numerators = np.array([v.numerator for v in values], dtype=np.int64) % prime
-            denominators = np.array([v.denominator for v in values], dtype=np.int64)
-            inverses = {int(d): pow(int(d), -1, prime) for d in np.unique(denominators)}
-            data = numerators * np.array([inverses[int(d)] for d in denominators], dtype=np.int64) % prime
-        matrices.append(sparse.csr_matrix((data, (rows, cols)), shape=(size, size)))
-    return tuple(matrices)
+@lru_cache(maxsize=512)
+def _position_operator(twice_spins: tuple[int, ...], twice_total: int, k: int, kind: str,
+                       prime: int | None) -> sparse.csr_matrix:
+    """The bond S_k . S_{k+1} (``kind`` "bond") or the exchange of the sites at positions k, k+1 ("exchange",
+    into the paths of the exchanged order), modulo ``prime`` (int64 residues in [0, p)); with prime None, the
+    pattern (every nonzero 1)."""
+    source = _paths(twice_spins, twice_total)
+    a, b = twice_spins[k], twice_spins[k + 1]
+    if kind == "bond":
+        target, local = source, _local_bond
+    else:
+        swapped = twice_spins[:k] + (b, a) + twice_spins[k + 2:]
+        target, local = _paths(swapped, twice_total), _local_exchange
+    j0, j, total = (source.levels[:, k + c] for c in range(3))
+    index = np.arange(source.size)
+    base = index - source.offsets[k + 1][j0, j] - source.offsets[k + 2][j, total]
+    width = int(source.levels.max(initial=0)) + 1
+    keys = (j0 * width + j) * width + total
+    rows, cols, data = [], [], []
+    for key in np.unique(keys):
+        chosen = np.flatnonzero(keys == key)
+        kj0, kj, ktotal = int(key) // width // width, int(key) // width % width, int(key) % width
+        for target_j, value in local(kj0, a, b, ktotal)[kj]:
+            rows.append(base[chosen] + target.offsets[k + 1][kj0, target_j] + target.offsets[k + 2][target_j, ktotal])
+            cols.append(chosen)
+            data.append(np.full(chosen.size, 1 if prime is None else _residue(value, prime), dtype=np.int64))
+    if not rows:
+        return sparse.csr_matrix((target.size, source.size), dtype=np.int64)
+    return sparse.csr_matrix((np.concatenate(data), (np.concatenate(rows), np.concatenate(cols))),
+                             shape=(target.size, source.size), dtype=np.int64)
 
 
-def _block_matrix_mod(n: int, lower: int, bonds, prime: int | None) -> sparse.csr_matrix:
-    """A_S modulo `prime` (int64 residues in [0, p)), A = sum_b zz_b (2 P_b - 1), bonds as (u, v, zz).  With prime
-    None, a pattern that contains the nonzeros of A_S modulo every prime (entries 1, nothing can cancel)."""
-    adjacent = _adjacent_mod(n, lower, prime)
-    size = len(standard_tableaux(n, lower))
+def _reduced(matrix: sparse.csr_matrix, prime: int | None) -> sparse.csr_matrix:
+    if prime is None:
+        matrix.data[:] = 1
+    else:
+        matrix.data %= prime
+        matrix.eliminate_zeros()
+    return matrix
 
-    def reduced(matrix):
-        if prime is None:
-            matrix.data[:] = 1
-        else:
-            matrix.data %= prime
-            matrix.eliminate_zeros()
-        return matrix
 
-    modulus = prime or 2  # for the pattern every coefficient is 1
+def _bond_matrix(twice_spins: tuple[int, ...], twice_total: int, u: int, v: int, prime: int | None):
+    """S_u . S_v on the paths of ``twice_spins``: the adjacent bond at position min(u, v), conjugated by the
+    exchanges that bring the farther site next to the nearer one."""
+    i, j = min(u, v), max(u, v)
+    orders = [twice_spins]
+    for k in range(j - 1, i, -1):
+        s = orders[-1]
+        orders.append(s[:k] + (s[k + 1], s[k]) + s[k + 2:])
+    matrix = _position_operator(orders[-1], twice_total, i, "bond", prime)
+    for step, k in reversed(list(enumerate(range(j - 1, i, -1)))):
+        forward = _position_operator(orders[step], twice_total, k, "exchange", prime)
+        back = _position_operator(orders[step + 1], twice_total, k, "exchange", prime)
+        matrix = _reduced(back @ _reduced(matrix @ forward, prime), prime)
+    return matrix
+
+
+def _block_matrix(twice_spins: tuple[int, ...], twice_total: int, bonds, prime: int | None) -> sparse.csr_matrix:
+    """A_S modulo ``prime`` (int64 residues in [0, p)), A = sum_b 4 zz_b S_u . S_v, bonds as (u, v, zz).  With
+    prime None, a pattern that contains the nonzeros of A_S modulo every prime (entries 1, nothing cancels)."""
+    size = _paths(twice_spins, twice_total).size
     total = sparse.csr_matrix((size, size), dtype=np.int64)
-    diagonal = 0
     for u, v, zz in bonds:
-        i, j = min(u, v), max(u, v)
-        exchange = adjacent[j - 1]
-        for k in range(j - 2, i - 1, -1):
-            exchange = reduced(adjacent[k] @ reduced(exchange @ adjacent[k]))
-        total = reduced(total + exchange * (1 if prime is None else 2 * zz % modulus))
-        diagonal -= zz
-    identity = sparse.identity(size, dtype=np.int64, format="csr")
-    return reduced(total + identity * (1 if prime is None else diagonal % modulus)).tocsr()
+        weight = 1 if prime is None else 4 * zz % prime
+        total = _reduced(total + _bond_matrix(twice_spins, twice_total, u, v, prime) * weight, prime)
+    return total.tocsr()
 
 
-@lru_cache(maxsize=256)
-def _gauge_mod(n: int, lower: int, prime: int) -> tuple[np.ndarray, np.ndarray]:
-    """Row and column weights c(T)^2 and c(T)^-2 modulo `prime`, as float64 residues."""
-    _, squares = _adjacent_actions(n, lower)
-    cache = {}
-    rows = [cache[s] if s in cache else cache.setdefault(s, _residue(s, prime)) for s in squares]
-    columns = [pow(r, -1, prime) for r in rows]
-    return np.array(rows, dtype=np.float64), np.array(columns, dtype=np.float64)
-
-
-def multiplet_weight(twice_s: int, q: int) -> int:
-    """w_q(S) = sum_{m=-S..S} (2m)^q (w_0 = 2S + 1, the multiplet's size)."""
-    return sum((2 * m2 - twice_s) ** q for m2 in range(twice_s + 1))
+def _gauge_mod(twice_spins: tuple[int, ...], twice_total: int, prime: int) -> tuple[np.ndarray, np.ndarray]:
+    """Row and column weights c^2 and c^-2 of every path (c^2 its squared norm) modulo ``prime``, float64."""
+    paths = _paths(twice_spins, twice_total)
+    weight = np.ones(paths.size, dtype=np.int64)
+    for level, spin in enumerate(twice_spins):
+        before, after = paths.levels[:, level], paths.levels[:, level + 1]
+        table = np.zeros((int(before.max(initial=0)) + 1, int(after.max(initial=0)) + 1), dtype=np.int64)
+        for j in np.unique(before):
+            for k in _couplings_allowed(int(j), spin):
+                if k < table.shape[1]:
+                    table[j, k] = _residue(_step_norm(int(j), spin, k), prime)
+        weight = weight * table[before, after] % prime
+    inverse = np.array([pow(int(w), -1, prime) for w in weight], dtype=np.float64)
+    return weight.astype(np.float64), inverse
 
 
 def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
@@ -206,33 +327,39 @@ def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
     """
     from hte.exact import propagation_block  # hte.exact calls this module
 
-    n = ham.n_sites
-    couplings, bonds = _relabelled_bonds(ham)
+    couplings, twice_spins, bonds = _relabelled(ham)
     sums = {q: [0] * (order + 1) for q in (0, 2, 4)}
-    for lower in range(n // 2 + 1):
-        twice_s = n - 2 * lower
-        size = len(standard_tableaux(n, lower))
-        bits = prime_bits_for(_pattern_size(n, lower, bonds)[0], 2**62, size)  # the nonzeros fix the prime size
+    for twice_total in _total_spins(twice_spins):
+        size = _paths(twice_spins, twice_total).size
+        if not size:
+            continue
+        bits = prime_bits_for(_pattern_size(twice_spins, twice_total, bonds)[0], 2**62, size)
         primes = primes_exceeding(bits, size * max(couplings.spectral_bound, 1) ** order)
         residues = []
         for prime in primes:
-            matrix = _block_matrix_mod(n, lower, bonds, prime)
-            row_weight, column_weight = _gauge_mod(n, lower, prime)
+            matrix = _block_matrix(twice_spins, twice_total, bonds, prime)
+            row_weight, column_weight = _gauge_mod(twice_spins, twice_total, prime)
             residues.append(power_traces_mod(
                 matrix.indptr.astype(np.int64), matrix.indices.astype(np.int64),
                 symmetric_residues(matrix.data.astype(np.int64), prime), row_weight,
                 np.arange(size, dtype=np.int64), column_weight, order, prime, propagation_block(size)))
         traces = [crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)]
         for q in sums:
-            weight = multiplet_weight(twice_s, q)
+            weight = multiplet_weight(twice_total, q)
             for k in range(order + 1):
                 sums[q][k] += weight * traces[k]
     return couplings.scale, sums
 
 
+def _total_spins(twice_spins: tuple[int, ...]) -> range:
+    """Twice every total spin the sites can couple to, from the lowest (0 or 1/2) to the sum of the spins."""
+    top = sum(twice_spins)
+    return range(top % 2, top + 1, 2)
+
+
 def _bandwidth_order(n: int, edges) -> list[int]:
     """A relabelling of the sites (old -> new) that keeps bonded sites close (reverse Cuthill-McKee): a bond
-    (i, j) costs 2 |i - j| - 1 adjacent transpositions."""
+    (i, j) costs 2 |i - j| - 1 adjacent operators."""
     from scipy.sparse.csgraph import reverse_cuthill_mckee
 
     if not edges:
@@ -249,22 +376,26 @@ def _bandwidth_order(n: int, edges) -> list[int]:
 def estimated_cost(ham) -> float:
     """Multiply-adds per prime and per pair of powers of :func:`total_spin_power_sums` (sum over the blocks of
     dimension x nonzeros), to weigh it against the S^z sectors (:func:`hte.exact.cluster_cumulants`)."""
-    _, bonds = _relabelled_bonds(ham)
-    return sum(float(len(standard_tableaux(ham.n_sites, lower))) * _pattern_size(ham.n_sites, lower, bonds)[1]
-               for lower in range(ham.n_sites // 2 + 1))
+    _, twice_spins, bonds = _relabelled(ham)
+    return sum(float(_paths(twice_spins, s).size) * _pattern_size(twice_spins, s, bonds)[1]
+               for s in _total_spins(twice_spins))
 
 
-def _relabelled_bonds(ham):
-    """The integer couplings of `ham` and its bonds (u, v, zz) with the sites relabelled by
+def _relabelled(ham):
+    """The integer couplings of ``ham``, its spins (twice) and bonds (u, v, zz) with the sites relabelled by
     :func:`_bandwidth_order`."""
     couplings = integer_couplings(ham)
-    order_map = _bandwidth_order(ham.n_sites, [(u, v) for u, v, _, _ in couplings.bonds])
-    return couplings, tuple((order_map[u], order_map[v], zz) for u, v, _, zz in couplings.bonds)
+    new_label = _bandwidth_order(ham.n_sites, [(u, v) for u, v, _, _ in couplings.bonds])
+    twice_spins = [0] * ham.n_sites
+    for old, new in enumerate(new_label):
+        twice_spins[new] = couplings.twice_spins[old]
+    bonds = tuple((new_label[u], new_label[v], zz) for u, v, _, zz in couplings.bonds)
+    return couplings, tuple(twice_spins), bonds
 
 
 @lru_cache(maxsize=1024)
-def _pattern_size(n: int, lower: int, bonds: tuple) -> tuple[int, int]:
-    """(longest row, nonzeros) of the cancellation-free pattern of block (n - lower, lower): bounds for every
-    prime (:func:`_block_matrix_mod` with prime None); remembered, as the cost model asks first."""
-    pattern = _block_matrix_mod(n, lower, bonds, None)
+def _pattern_size(twice_spins: tuple[int, ...], twice_total: int, bonds: tuple) -> tuple[int, int]:
+    """(longest row, nonzeros) of the cancellation-free pattern of block ``twice_total``: bounds for every prime
+    (:func:`_block_matrix` with prime None); remembered, as the cost model asks first."""
+    pattern = _block_matrix(twice_spins, twice_total, bonds, None)
     return int(np.diff(pattern.indptr).max(initial=1)), int(pattern.nnz)

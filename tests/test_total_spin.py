@@ -1,81 +1,107 @@
-"""Total-spin blocks of spin-1/2 Heisenberg clusters (hte.total_spin) against independent facts and routes.
+"""Total-spin blocks of isotropic clusters of any spins (hte.total_spin) against independent facts and routes.
 
-The representation is checked against the defining relations of the symmetric group and Frobenius' character
-formula; the power sums against the S^z-sector kernel of hte.exact (a different basis and algorithm) and, for a
-small cluster, against a dense exact sympy trace.
+The coupled basis is checked against the Clebsch-Gordan series (its size), the defining relations of the
+permutation group (its site exchanges) and the pair-spin levels of a bond (Kambe's method); the power sums
+against the S^z-sector kernel of hte.exact (a different basis and algorithm), against Kambe's closed form for
+all-to-all clusters and, for small clusters, against dense exact sympy traces from explicit spin matrices.
 """
 
 from __future__ import annotations
 
 import random
 from fractions import Fraction
-from math import comb
 
+import numpy as np
 import pytest
 import sympy as sp
 
-from hte.exact import TOTAL_SPIN_MIN_SITES, ClusterHamiltonian, _integer_power_traces, cluster_cumulants
+from hte.exact import (
+    TOTAL_SPIN_MIN_STATES,
+    ClusterHamiltonian,
+    _integer_power_traces,
+    _total_spin_pays,
+    cluster_cumulants,
+    cumulants_from_integer_moments,
+)
+from hte.spin_matrices import spin_sectors
 from hte.total_spin import (
-    _adjacent_actions,
+    _gauge_mod,
+    _local_bond,
+    _paths,
+    _position_operator,
     applies,
     multiplet_weight,
-    standard_tableaux,
     total_spin_power_sums,
 )
 
 HALF = Fraction(1, 2)
+PRIME = 33554393  # the largest prime below 2^25 (any prime far above the denominators would do)
 
 
-def seminormal_matrices(n, lower):
-    actions, squares = _adjacent_actions(n, lower)
-    size = len(standard_tableaux(n, lower))
-    matrices = []
-    for rows, cols, values in actions:
-        m = sp.zeros(size, size)
-        for r, c, v in zip(rows, cols, values):
-            m[int(r), int(c)] += sp.Rational(v.numerator, v.denominator)
-        matrices.append(m)
-    return matrices, [sp.Rational(s.numerator, s.denominator) for s in squares]
+@pytest.mark.parametrize("twice_spins", [(1,) * 9, (2,) * 6, (3, 3, 3, 3), (1, 2, 3, 2, 1), (5, 4, 5)])
+def test_path_counts_follow_the_clebsch_gordan_series(twice_spins):
+    # Highest-weight states of spin S = dim(S^z = S) - dim(S^z = S + 1) (common practice), counted here from
+    # the product states; the path index formula must enumerate the paths in order.
+    dims = {s.twice_magnetization: s.dim for s in spin_sectors(twice_spins)}
+    for twice_total in range(sum(twice_spins) % 2, sum(twice_spins) + 1, 2):
+        paths = _paths(twice_spins, twice_total)
+        assert paths.size == dims[twice_total] - dims.get(twice_total + 2, 0)
+        index = sum(paths.offsets[l][paths.levels[:, l - 1], paths.levels[:, l]] for l in range(1, len(twice_spins) + 1))
+        assert np.array_equal(index, np.arange(paths.size))
 
 
-@pytest.mark.parametrize("n", range(1, 13))
-def test_tableau_counts_follow_the_hook_length_formula(n):
-    # Two-row shape (n - l, l): f = C(n, l) - C(n, l - 1) (hook length formula; common practice).
-    for lower in range(n // 2 + 1):
-        assert len(standard_tableaux(n, lower)) == comb(n, lower) - (comb(n, lower - 1) if lower else 0)
+def dense_mod(matrix):
+    return np.asarray(matrix.todense()) % PRIME
 
 
-@pytest.mark.parametrize("n, lower", [(4, 2), (5, 2), (6, 2), (6, 3), (7, 3)])
-def test_seminormal_matrices_satisfy_the_coxeter_relations(n, lower):
-    # s_k^2 = 1, (s_k s_k+1)^3 = 1, (s_k s_l)^2 = 1 for |k - l| >= 2: the presentation of S_n (common practice).
-    s, _ = seminormal_matrices(n, lower)
-    one = sp.eye(s[0].shape[0])
+@pytest.mark.parametrize("twice_spin, n, twice_total", [(1, 6, 2), (2, 5, 2), (3, 4, 3), (4, 4, 4)])
+def test_site_exchanges_satisfy_the_coxeter_relations(twice_spin, n, twice_total):
+    # Exchanges of equal spins: P_k^2 = 1, (P_k P_k+1)^3 = 1, (P_k P_l)^2 = 1 for |k - l| >= 2, the presentation of
+    # the permutation group (common practice); here modulo a large prime.
+    spins = (twice_spin,) * n
+    p = [dense_mod(_position_operator(spins, twice_total, k, "exchange", PRIME)) for k in range(n - 1)]
+    one = np.eye(p[0].shape[0], dtype=np.int64)
+
+    def times(*factors):
+        result = one
+        for f in factors:
+            result = result @ f % PRIME
+        return result
+
     for k in range(n - 1):
-        assert s[k] * s[k] == one
+        assert np.array_equal(times(p[k], p[k]), one)
         if k + 1 < n - 1:
-            assert (s[k] * s[k + 1]) ** 3 == one
+            assert np.array_equal(times(*[p[k], p[k + 1]] * 3), one)
         for l in range(k + 2, n - 1):
-            assert (s[k] * s[l]) ** 2 == one
+            assert np.array_equal(times(*[p[k], p[l]] * 2), one)
 
 
-@pytest.mark.parametrize("n, lower", [(5, 1), (6, 2), (7, 3), (8, 4)])
-def test_transposition_character_matches_frobenius(n, lower):
-    # chi(transposition) / dim = (sum of contents of the diagram) / C(n, 2) (Frobenius 1900; common practice).
-    s, _ = seminormal_matrices(n, lower)
-    contents = sum(range(n - lower)) + sum(c - 1 for c in range(lower))
-    dim = s[0].shape[0]
-    for k in range(n - 1):
-        assert s[k].trace() == sp.Rational(dim * contents, comb(n, 2))
+@pytest.mark.parametrize("j0, a, b, total", [(0, 2, 2, 2), (2, 2, 2, 2), (3, 3, 3, 3), (4, 2, 5, 5), (6, 5, 5, 4)])
+def test_adjacent_bond_has_the_pair_spin_levels(j0, a, b, total):
+    # S_a.S_b = [j(j+1) - s_a(s_a+1) - s_b(s_b+1)] / 2 for the pair coupled to spin j (Kambe's method; K. Kambe,
+    # J. Phys. Soc. Jpn. 5, 48 (1950), from memory); the pair spins allowed are those that couple with j0 to total.
+    local = _local_bond(j0, a, b, total)
+    order = sorted(local)
+    matrix = sp.zeros(len(order), len(order))
+    for j, column in local.items():
+        for target, value in column:
+            matrix[order.index(target), order.index(j)] = sp.Rational(value.numerator, value.denominator)
+    x = sp.Symbol("x")
+    pair_spins = [p for p in range(abs(a - b), a + b + 1, 2) if abs(j0 - p) <= total <= j0 + p]
+    levels = [sp.Rational(p * (p + 2) - a * (a + 2) - b * (b + 2), 8) for p in pair_spins]
+    assert sp.expand(matrix.charpoly(x).as_expr() - sp.prod([x - e for e in levels])) == 0
 
 
-@pytest.mark.parametrize("n, lower", [(6, 2), (7, 3), (8, 3)])
-def test_gauge_makes_every_adjacent_transposition_symmetric(n, lower):
+@pytest.mark.parametrize("twice_spins, twice_total", [((1,) * 7, 1), ((2,) * 5, 2), ((3, 1, 2, 3), 3)])
+def test_gauge_makes_every_bond_symmetric(twice_spins, twice_total):
     # A = C^-1 S C with S symmetric  <=>  A_ab c_a^2 = A_ba c_b^2 (what the symmetric trace splitting uses).
-    s, squares = seminormal_matrices(n, lower)
-    for m in s:
-        for a in range(m.shape[0]):
-            for b in range(m.shape[0]):
-                assert m[a, b] * squares[a] == m[b, a] * squares[b]
+    from hte.total_spin import _bond_matrix
+
+    rows, _ = _gauge_mod(twice_spins, twice_total, PRIME)
+    c2 = rows.astype(np.int64)
+    for u, v in [(0, 1), (1, 2), (0, 3), (1, len(twice_spins) - 1)]:
+        a = dense_mod(_bond_matrix(twice_spins, twice_total, u, v, PRIME))
+        assert np.array_equal(a * c2[:, None] % PRIME, (a * c2[:, None] % PRIME).T)
 
 
 def sector_power_sums(ham, order):
@@ -86,7 +112,7 @@ def sector_power_sums(ham, order):
                    for q in (0, 2, 4)}
 
 
-def random_heisenberg(rng, n, extra):
+def random_heisenberg(rng, n, extra, spins=(HALF,)):
     edges = {(rng.randrange(i), i) for i in range(1, n)}
     while len(edges) < min(n - 1 + extra, n * (n - 1) // 2):
         u, v = sorted(rng.sample(range(n), 2))
@@ -95,47 +121,92 @@ def random_heisenberg(rng, n, extra):
     for u, v in sorted(edges):
         j = Fraction(rng.choice([1, -1, 2, -3, 5]), rng.choice([1, 2, 3, 7]))
         bonds.append((u, v, j, j))
-    return ClusterHamiltonian(spins=(HALF,) * n, bonds=tuple(bonds))
+    return ClusterHamiltonian(spins=tuple(rng.choice(spins) for _ in range(n)), bonds=tuple(bonds))
 
 
-@pytest.mark.parametrize("seed", range(8))
+SPIN_SETS = [(HALF,), (Fraction(1),), (Fraction(3, 2),), (Fraction(2),), (Fraction(5, 2),), (HALF, Fraction(1)),
+             (Fraction(1), Fraction(5, 2)), (HALF, Fraction(3, 2), Fraction(2))]
+
+
+@pytest.mark.parametrize("seed", range(16))
 def test_total_spin_sums_equal_the_sz_sector_sums(seed):
     rng = random.Random(seed)
-    ham = random_heisenberg(rng, rng.randint(2, 10), rng.randint(0, 5))
+    spins = SPIN_SETS[seed % len(SPIN_SETS)]
+    largest = {HALF: 10, Fraction(1): 6}.get(max(spins), 4)
+    ham = random_heisenberg(rng, rng.randint(2, largest), rng.randint(0, 5), spins)
     assert total_spin_power_sums(ham, 9) == sector_power_sums(ham, 9)
 
 
-def test_large_cluster_takes_the_total_spin_route_with_the_same_result():
-    # A 13-site cluster with couplings of both signs and no symmetry: cluster_cumulants uses the total-spin
-    # blocks here; the S^z route gives the same moments.
-    ham = random_heisenberg(random.Random(42), TOTAL_SPIN_MIN_SITES, 3)
-    from hte.exact import cumulants_from_integer_moments
-
+@pytest.mark.parametrize("spin, n", [(HALF, 13), (Fraction(1), 9), (Fraction(2), 6)])
+def test_large_cluster_takes_the_total_spin_route_with_the_same_result(spin, n):
+    # A path of n spins with a chord: cluster_cumulants uses the total-spin blocks here (checked); the S^z route
+    # gives the same moments.
+    bonds = tuple((i, i + 1, Fraction(1 + i % 3, 2), Fraction(1 + i % 3, 2)) for i in range(n - 1)) + ((0, 3, -1, -1),)
+    ham = ClusterHamiltonian(spins=(spin,) * n, bonds=bonds)
+    assert (2 * spin + 1) ** n >= TOTAL_SPIN_MIN_STATES and _total_spin_pays(ham)
     scale, sums = sector_power_sums(ham, 10)
     assert cluster_cumulants(ham, 10) == cumulants_from_integer_moments(sums, scale, 10)
 
 
-def test_triangle_traces_match_a_dense_sympy_trace():
-    # Tr(M^q (scale H0)^k) over all 8 states of a triangle, from explicit Pauli matrices (independent route).
-    ham = ClusterHamiltonian(spins=(HALF,) * 3, bonds=((0, 1, 1, 1), (1, 2, 2, 2), (0, 2, -1, -1)))
+@pytest.mark.parametrize("spin, n", [(Fraction(1), 5), (Fraction(3, 2), 4), (Fraction(5, 2), 3)])
+def test_all_to_all_cluster_matches_kambe_levels(spin, n):
+    # H = J sum_{i<j} S_i.S_j = (J/2)[S_T(S_T+1) - n S(S+1)], multiplicities from the Clebsch-Gordan series
+    # (K. Kambe, J. Phys. Soc. Jpn. 5, 48 (1950), from memory); here J = 1, so scale * H has these levels times
+    # scale, and sum_m (2m)^q Tr_m A^k = sum over multiplets of w_q(S_T) E^k.
+    bonds = tuple((u, v, 1, 1) for u in range(n) for v in range(u + 1, n))
+    scale, sums = total_spin_power_sums(ClusterHamiltonian(spins=(spin,) * n, bonds=bonds), 8)
+    twice = int(2 * spin)
+    multiplicities = {twice: 1}
+    for _ in range(n - 1):
+        following = {}
+        for partial, times in multiplicities.items():
+            for total in range(abs(partial - twice), partial + twice + 1, 2):
+                following[total] = following.get(total, 0) + times
+        multiplicities = following
+    for q in (0, 2, 4):
+        expected = [sum(times * multiplet_weight(t, q) * (scale * (Fraction(t * (t + 2), 8)
+                                                                   - n * spin * (spin + 1) / 2)) ** k
+                        for t, times in multiplicities.items()) for k in range(9)]
+        assert sums[q] == expected
+
+
+def spin_operators(spin):
+    """S^x, S^y, S^z of one spin as exact sympy matrices (orthonormal basis m = S, S-1, ..., -S)."""
+    s = sp.Rational(spin)
+    ms = [s - k for k in range(int(2 * s) + 1)]
+    plus = sp.zeros(len(ms), len(ms))
+    for k in range(1, len(ms)):
+        m = ms[k]
+        plus[k - 1, k] = sp.sqrt(s * (s + 1) - m * (m + 1))
+    return (plus + plus.T) / 2, (plus - plus.T) / (2 * sp.I), sp.diag(*ms)
+
+
+@pytest.mark.parametrize("spins, bonds", [
+    ((HALF,) * 3, ((0, 1, 1), (1, 2, 2), (0, 2, -1))),
+    ((Fraction(1),) * 3, ((0, 1, 1), (1, 2, Fraction(1, 2)), (0, 2, -2))),
+    ((HALF, Fraction(3, 2), Fraction(1)), ((0, 1, 3), (1, 2, -1))),
+])
+def test_small_cluster_traces_match_a_dense_sympy_trace(spins, bonds):
+    # Tr((2M)^q (scale H0)^k) over all states, from explicit spin matrices (independent route).
+    ham = ClusterHamiltonian(spins=spins, bonds=tuple((u, v, Fraction(j), Fraction(j)) for u, v, j in bonds))
     scale, sums = total_spin_power_sums(ham, 6)
-    sx = sp.Matrix([[0, 1], [1, 0]]) / 2
-    sy = sp.Matrix([[0, -sp.I], [sp.I, 0]]) / 2
-    sz = sp.Matrix([[1, 0], [0, -1]]) / 2
+    operators = [spin_operators(s) for s in spins]
+    dims = [int(2 * s) + 1 for s in spins]
 
     def at(op, site):
-        factors = [op if k == site else sp.eye(2) for k in range(3)]
-        return sp.kronecker_product(*factors)
+        return sp.kronecker_product(*[op if k == site else sp.eye(d) for k, d in enumerate(dims)])
 
-    h = sp.zeros(8, 8)
-    for u, v, j, _ in ham.bonds:
-        h += sp.Rational(j.numerator, j.denominator) * sum((at(o, u) * at(o, v) for o in (sx, sy, sz)), sp.zeros(8, 8))
-    two_m = 2 * sum((at(sz, k) for k in range(3)), sp.zeros(8, 8))
-    a = scale * h
+    size = int(np.prod(dims))
+    h = sp.zeros(size, size)
+    for u, v, j in bonds:
+        h += sp.Rational(j) * sum((at(operators[u][c], u) * at(operators[v][c], v) for c in range(3)),
+                                  sp.zeros(size, size))
+    two_m = 2 * sum((at(operators[k][2], k) for k in range(len(spins))), sp.zeros(size, size))
+    a = (scale * h).applyfunc(sp.nsimplify)
     for q in (0, 2, 4):
         power = two_m**q
         for k in range(7):
-            assert sp.nsimplify(power.trace()) == sums[q][k]
+            assert sp.nsimplify(sp.expand(power.trace())) == sums[q][k]
             power = (power * a).applyfunc(sp.expand)
 
 
@@ -145,9 +216,9 @@ def test_multiplet_weights():
     assert [multiplet_weight(3, q) for q in (0, 2, 4)] == [4, 20, 164]
 
 
-def test_only_spin_half_isotropic_clusters_apply():
+def test_isotropic_clusters_of_any_spin_apply_and_anisotropic_ones_do_not():
     bond = ((0, 1, 1, 1),)
     assert applies(ClusterHamiltonian(spins=(HALF, HALF), bonds=bond))
-    assert not applies(ClusterHamiltonian(spins=(HALF, Fraction(1)), bonds=bond))
+    assert applies(ClusterHamiltonian(spins=(HALF, Fraction(1)), bonds=bond))
     assert not applies(ClusterHamiltonian(spins=(HALF, HALF), bonds=((0, 1, Fraction(1, 2), 1),)))
     assert not applies(ClusterHamiltonian(spins=(Fraction(1), Fraction(1)), bonds=bond, anisotropy=(1, 0)))
