@@ -224,8 +224,8 @@ def _total_spin_pays(ham: ClusterHamiltonian) -> bool:
     spins 1/2), and G is the symmetry group of the cluster, twice as large at S^z = 0 with the spin flip.  A block
     costs its dimension times its nonzeros (:func:`hte.total_spin.estimated_cost`).  The orbit reduction is taken
     as perfect, which favours the sectors for very symmetric clusters.  Checked on spin-1/2 clusters of 14-16
-    sites and on paths, rings and trees of spins 1 to 5/2 (README): the choice was right or within a factor 2 of
-    the better route.
+    sites and on paths, rings, trees and ladders of spins 1 to 5/2 (README, scripts/bench_total_spin.py): the
+    choice was right or within a factor 2.5 of the better route.
     """
     group = len(site_automorphisms(ham)) + 1
     twice = ham.twice_spins

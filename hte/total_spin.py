@@ -197,6 +197,8 @@ class _Paths:
 
 @lru_cache(maxsize=256)
 def _paths(twice_spins: tuple[int, ...], twice_total: int) -> _Paths:
+    """All paths of the sites ``twice_spins`` (in this order) to ``twice_total``: counts[l][j] paths complete
+    from j_l = j/2; they are laid out level by level, each parent's children in ascending j."""
     n = len(twice_spins)
     tops = np.concatenate([[0], np.cumsum(twice_spins)]).astype(int)
     counts = [np.zeros(top + 1, dtype=np.int64) for top in tops]
