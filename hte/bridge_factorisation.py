@@ -310,7 +310,6 @@ class RootedWeights:
         self._numerators: dict[str, tuple[list, list]] = {}
         self.valued: dict[str, ValuedGraph] = {}
         self.subgraph_memo: dict[str, dict[str, int]] = {}
-        self.indexed: set[str] = set()
         self._unrooted: dict[str, ValuedGraph] = {}
         self._halves: dict[str, tuple] = {}
         self._second_order: dict[str, tuple] = {}
@@ -318,16 +317,17 @@ class RootedWeights:
         self._catalogue = SubgraphCatalogue()
 
     def add(self, vg: ValuedGraph, u1, u3) -> None:
-        """Record the rooted series of every vertex of `vg` (``u1[v]``, ``u3[v]`` for vertex v of vg.graph)."""
-        if vg.key in self.indexed:
-            return
-        self.indexed.add(vg.key)
-        self._denominators, self._numerators = None, {}
-        for v in range(vg.graph.n_vertices):
-            rvg = rooted_valued(vg, v)
-            if rvg.key not in self.series:
-                self.series[rvg.key] = (list(u1[v][: self.order]), list(u3[v][: self.order]))
-                self.valued[rvg.key] = rvg
+        """Record the rooted series of the vertices v of `vg` that ``u1`` and ``u3`` hold (``u1[v]``, ``u3[v]``,
+        v a vertex of vg.graph; dicts by vertex, or lists over every vertex)."""
+        for v in (u1 if isinstance(u1, dict) else range(len(u1))):
+            self.add_rooted(rooted_valued(vg, v), u1[v], u3[v])
+
+    def add_rooted(self, rvg: ValuedGraph, u1, u3) -> None:
+        """Record the rooted series of the rooted valued graph `rvg` (coefficients from beta^0)."""
+        if rvg.key not in self.series:
+            self._denominators, self._numerators = None, {}
+            self.series[rvg.key] = (list(u1[: self.order]), list(u3[: self.order]))
+            self.valued[rvg.key] = rvg
 
     def _rooted_subgraphs(self, rvg: ValuedGraph) -> dict[str, int]:
         """{rooted key: count} of the connected proper subgraphs of `rvg` with >= 1 bond that contain the root."""
@@ -363,20 +363,24 @@ class RootedWeights:
 
     def needed_for(self, vg: ValuedGraph) -> list[ValuedGraph]:
         """The (unrooted) valued graphs whose rooted series the factorised weight of `vg` uses."""
+        return [graph for graph, _ in self.needed_rooted(vg)]
+
+    def needed_rooted(self, vg: ValuedGraph) -> list[tuple[ValuedGraph, ValuedGraph]]:
+        """(unrooted graph, rooted graph) of every rooted series the factorised weight of `vg` uses."""
         parts = list(self.halves(vg)[:2])
         if vg.graph.n_edges < self.order:
             parts += self.second_order_parts(vg)[:3]
         if vg.graph.n_edges < self.order - 1:
             parts += self.excess_two_parts(vg).rooted_graphs()
-        return [graph for part in parts for graph in self.needed_graphs(part)]
+        return [pair for part in parts for pair in self._needed_pairs(part)]
 
-    def needed_graphs(self, rvg: ValuedGraph) -> list[ValuedGraph]:
-        """The (unrooted) valued graphs whose rooted series :meth:`top` needs for the rooted graph `rvg`."""
+    def _needed_pairs(self, rvg: ValuedGraph) -> list[tuple[ValuedGraph, ValuedGraph]]:
+        """(unrooted, rooted) of every rooted series :meth:`top` needs for the rooted graph `rvg`."""
         rooted = [rvg, self._root_alone(rvg)] + [self.valued[k] for k in self._rooted_subgraphs(rvg)]
         for r in rooted:
             if r.key not in self._unrooted:
                 self._unrooted[r.key] = unrooted(r)
-        return [self._unrooted[r.key] for r in rooted]
+        return [(self._unrooted[r.key], r) for r in rooted]
 
     def _common_denominators(self) -> list[list[int]]:
         """lcm of the denominators of every rooted series at beta^n, for u_1 and u_3 (n = 0..order-1)."""

@@ -54,7 +54,7 @@ _BLOCK_ENTRIES = 2**20  # unit vectors propagated together: dim * block <= this 
 _BLOCK_MAX = 64
 SYMMETRY_MIN_DIM = 64  # sectors this large use the cluster's symmetries; below, the search costs more than it saves
 # Isotropic clusters with this many states or more may be traced over total-spin blocks (hte.total_spin), when
-# the cost model of _total_spin_pays favours them.  Measured on kagome, path and random clusters: below 2^13
+# the cost model of total_spin_pays favours them.  Measured on kagome, path and random clusters: below 2^13
 # states (13 spins 1/2, 9 spins 1) the S^z sectors with orbit reduction are as fast or faster; spin-1/2 paths of
 # 16 and 17 sites ran x4 and x6.5 faster in blocks, spin-1 paths of 10 sites x7.
 TOTAL_SPIN_MIN_STATES = 2**13
@@ -203,8 +203,7 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     about (order/2) * nnz * d multiply-adds, nnz the number of nonzeros of H0 in the sector.
     """
     order = check_order(order)
-    if (prod(t + 1 for t in ham.twice_spins) >= TOTAL_SPIN_MIN_STATES and total_spin.applies(ham)
-            and _total_spin_pays(ham)):
+    if total_spin_pays(ham):
         scale, sums = total_spin.total_spin_power_sums(ham, order)
         return cumulants_from_integer_moments(sums, scale, order)
     scale, traces = _integer_power_traces(ham, order)
@@ -216,8 +215,10 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     return cumulants_from_integer_moments(sums, scale, order)
 
 
-def _total_spin_pays(ham: ClusterHamiltonian) -> bool:
-    """True when the total-spin blocks should be cheaper than the S^z sectors for this isotropic cluster.
+def total_spin_pays(ham: ClusterHamiltonian, passes: int = 1) -> bool:
+    """True when ``passes`` traces over the total-spin blocks (:mod:`hte.total_spin`; one per root for rooted
+    series) should be cheaper than the S^z sectors: for isotropic clusters of TOTAL_SPIN_MIN_STATES states or
+    more, by a cost model.
 
     Per pair of powers and per prime, a sector costs about dim^2 (1 + F) / |G| multiply-adds: a row holds the
     diagonal and F flips, F = sum_b 2 (2S_u)(2S_v) / ((2S_u + 1)(2S_v + 1)) on average (E/2 for E bonds between
@@ -227,13 +228,15 @@ def _total_spin_pays(ham: ClusterHamiltonian) -> bool:
     sites and on paths, rings, trees and ladders of spins 1 to 5/2 (README, scripts/bench_total_spin.py): the
     choice was right or within a factor 2.5 of the better route.
     """
+    if prod(t + 1 for t in ham.twice_spins) < TOTAL_SPIN_MIN_STATES or not total_spin.applies(ham):
+        return False
     group = len(site_automorphisms(ham)) + 1
     twice = ham.twice_spins
     flips = sum(2 * twice[u] * twice[v] / ((twice[u] + 1) * (twice[v] + 1)) for u, v, _, _ in ham.bonds)
     sectors = spin_sectors(twice, nonnegative_only=True)
     sector_cost = sum(sector.dim**2 * (1 + flips) / (group * (2 if sector.twice_magnetization == 0 else 1))
                       for sector in sectors)
-    return total_spin.estimated_cost(ham) < sector_cost
+    return passes * total_spin.estimated_cost(ham) < sector_cost
 
 
 def _integer_power_traces(

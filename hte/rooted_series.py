@@ -21,6 +21,10 @@ As in the plain kernel, one unit vector per orbit of the cluster's symmetries is
 (:mod:`hte.cluster_symmetry`): (A^k)_bb is constant on an orbit, so a site's sum is the representative's
 diagonal times the orbit sum of m_a(b).  The cluster's own series (ln Z, <M^2>, <M^4>_c) come out of the same
 traces and equal :func:`hte.exact.cluster_cumulants` exactly.
+
+When only a few roots are wanted and the cluster is isotropic, each root may instead be traced over the
+total-spin blocks with that site coupled last (:func:`hte.total_spin.rooted_power_sums`), when the cost model
+:func:`hte.exact.total_spin_pays` says that one block pass per root is cheaper than the sectors.  Same integers.
 """
 
 from __future__ import annotations
@@ -31,6 +35,7 @@ from math import comb, factorial
 
 import numpy as np
 
+from hte import total_spin
 from hte.cluster_symmetry import site_automorphisms, state_orbit_labels
 from hte.exact import (
     SYMMETRY_MIN_DIM,
@@ -39,6 +44,7 @@ from hte.exact import (
     check_order,
     cumulants_from_integer_moments,
     propagation_block,
+    total_spin_pays,
 )
 from hte.modular import (
     crt_signed,
@@ -52,29 +58,53 @@ from hte.spin_matrices import gauge_weights_mod, integer_couplings, integer_sect
 
 @dataclass(frozen=True)
 class RootedSeries:
-    """Coefficients of beta^n, n = 0..order, of u_1(a) and u_3(a) (module docstring) for every site a.
+    """Coefficients of beta^n, n = 0..order, of u_1(a) and u_3(a) (module docstring) for sites a.
 
-    ``u1[a]`` and ``u3[a]`` are lists of Fractions; sites are numbered as in the ClusterHamiltonian.
+    ``u1[a]`` and ``u3[a]`` are lists of Fractions, for every site computed (a dict keyed by the site numbers of
+    the ClusterHamiltonian).
     """
 
-    u1: tuple
-    u3: tuple
+    u1: dict
+    u3: dict
 
 
-def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterCumulants, RootedSeries]:
-    """The cluster's own series and the rooted series of every site, exact to beta^order.
+def rooted_cluster_series(ham: ClusterHamiltonian, order: int,
+                          roots=None) -> tuple[ClusterCumulants, RootedSeries]:
+    """The cluster's own series and the rooted series of the sites ``roots`` (default: every site), exact to
+    beta^order.
 
     Returns
     -------
     (ClusterCumulants, RootedSeries)
-        The first equals :func:`hte.exact.cluster_cumulants` (ham, order).
+        The first equals :func:`hte.exact.cluster_cumulants` (ham, order).  The second holds at least the sites
+        asked for; the S^z route gives every site at no extra cost, and then returns them all.
 
     Notes
     -----
-    Costs about what :func:`hte.exact.cluster_cumulants` costs (the same propagation, one unit vector per
-    orbit of the cluster's symmetries); the diagonals kept take (orbits) * (order + 1) int64 per sector and prime.
+    The S^z route costs about what :func:`hte.exact.cluster_cumulants` costs in the sectors (the same
+    propagation, one unit vector per orbit of the cluster's symmetries); the diagonals kept take
+    (orbits) * (order + 1) int64 per sector and prime.  The total-spin route costs one block pass per root.
     """
     order = check_order(order)
+    wanted = list(range(ham.n_sites)) if roots is None else sorted(set(roots))
+    if wanted and total_spin_pays(ham, passes=len(wanted)):
+        return _rooted_by_total_spin(ham, order, wanted)
+    return _rooted_by_sectors(ham, order)
+
+
+def _rooted_by_total_spin(ham: ClusterHamiltonian, order: int, roots: list[int]):
+    """One total-spin pass per root (:func:`hte.total_spin.rooted_power_sums`)."""
+    u1, u3, cumulants = {}, {}, None
+    for root in roots:
+        scale, sums, rooted = total_spin.rooted_power_sums(ham, root, order)
+        if cumulants is None:
+            cumulants = cumulants_from_integer_moments(sums, scale, order)
+        (u1[root],), (u3[root],) = _joint_cumulants(sums[0], sums[2], [rooted[1]], [rooted[3]], scale, order)
+    return cumulants, RootedSeries(u1, u3)
+
+
+def _rooted_by_sectors(ham: ClusterHamiltonian, order: int) -> tuple[ClusterCumulants, RootedSeries]:
+    """Every site at once from the diagonals of the S^z-sector powers (module docstring)."""
     couplings = integer_couplings(ham)
     sectors = spin_sectors(ham.twice_spins, nonnegative_only=True)
     matrices = [integer_sector_matrix(sector, couplings) for sector in sectors]
@@ -120,7 +150,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int) -> tuple[ClusterC
     site_sums = {q: [[2 * sum(tm**q * t[a][k] for tm, t in rooted.items()) for k in range(order + 1)]
                      for a in range(ham.n_sites)] for q in (1, 3)}
     u1, u3 = _joint_cumulants(sums[0], sums[2], site_sums[1], site_sums[3], couplings.scale, order)
-    return cumulants, RootedSeries(tuple(u1), tuple(u3))
+    return cumulants, RootedSeries(dict(enumerate(u1)), dict(enumerate(u3)))
 
 
 def _joint_cumulants(s0, s2, r1, r3, scale: int, order: int) -> tuple[list, list]:

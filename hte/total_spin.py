@@ -36,6 +36,16 @@ rationals with small denominators, used as residues modulo primes below 2^26; th
 dim * R^k like those of :mod:`hte.exact`, and rebuilt by Chinese remaindering.  Modulo a prime the subspace
 relations hold exactly, so the residues are those of the integer traces.
 
+Rooted sums (:func:`rooted_power_sums`, for :mod:`hte.rooted_series`).  Within one multiplet the matrix elements
+of S^z_a are m/(S(S+1)) times those of the scalar Y_a = S_a . S_tot (projection theorem), so
+
+.. math:: \sum_m (2m)^q\,\mathrm{Tr}_m(2S^z_a A^k) = \sum_{S>0} \frac{w_{q+1}(S)}{2T(T+2)}\,
+          \mathrm{Tr}(A_S^k\,8Y_a),\qquad T = 2S .
+
+With site a coupled last, :math:`8Y_a = T(T+2) - T'(T'+2) + t_a(t_a+2)` is diagonal (T' = 2 j_{N-1}, the spin of
+the other sites; t_a = 2 s_a), so the diagonals of A_S^k are enough, as in the S^z sectors; but every root
+needs its own order of the sites, hence its own propagation.
+
 References (cited from memory)
 ------------------------------
 .. [1] A. R. Edmonds, Angular Momentum in Quantum Mechanics (Princeton University Press, 1957), ch. 3 and 6:
@@ -53,7 +63,14 @@ from math import prod
 import numpy as np
 import scipy.sparse as sparse
 
-from hte.modular import crt_signed, power_traces_mod, prime_bits_for, primes_exceeding, symmetric_residues
+from hte.modular import (
+    crt_signed,
+    power_diagonals_mod,
+    power_traces_mod,
+    prime_bits_for,
+    primes_exceeding,
+    symmetric_residues,
+)
 from hte.spin_matrices import integer_couplings
 
 
@@ -353,6 +370,51 @@ def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
     return couplings.scale, sums
 
 
+def rooted_power_sums(ham, root: int, order: int) -> tuple[int, dict[int, list[int]], dict[int, list[int]]]:
+    """scale, the sums s_q of :func:`total_spin_power_sums` and r_q[k] = sum_m (2m)^q Tr_m(2 S^z_root A^k),
+    q = 1, 3, k = 0..order (the input of :func:`hte.rooted_series._joint_cumulants` for one site), for a cluster
+    where :func:`applies`.  The sites are ordered with ``root`` last (module docstring)."""
+    from hte.exact import propagation_block  # hte.exact calls this module
+
+    couplings, twice_spins, bonds = _relabelled(ham, last=root)
+    twice_root = twice_spins[-1]
+    sums = {q: [0] * (order + 1) for q in (0, 2, 4)}
+    rooted = {q: [Fraction(0)] * (order + 1) for q in (1, 3)}
+    for twice_total in _total_spins(twice_spins):
+        paths = _paths(twice_spins, twice_total)
+        if not paths.size:
+            continue
+        rest = paths.levels[:, -2]
+        eight_y = twice_total * (twice_total + 2) - rest * (rest + 2) + twice_root * (twice_root + 2)
+        bits = prime_bits_for(_pattern_size(twice_spins, twice_total, bonds)[0], 2**62, paths.size)
+        bound = paths.size * max(couplings.spectral_bound, 1) ** order * max(int(np.abs(eight_y).max()), 1)
+        primes = primes_exceeding(bits, bound)
+        plain_residues, rooted_residues = [], []
+        for prime in primes:
+            matrix = _block_matrix(twice_spins, twice_total, bonds, prime)
+            row_weight, column_weight = _gauge_mod(twice_spins, twice_total, prime)
+            diagonals = power_diagonals_mod(
+                matrix.indptr.astype(np.int64), matrix.indices.astype(np.int64),
+                symmetric_residues(matrix.data.astype(np.int64), prime), row_weight,
+                np.arange(paths.size, dtype=np.int64), column_weight, order, prime, propagation_block(paths.size))
+            # diagonals < p and |8Y| mod p < p: each product < 2**52, a column of dim of them < 2**63
+            plain_residues.append(diagonals.sum(axis=0) % prime)
+            rooted_residues.append(((eight_y % prime)[:, None] * diagonals % prime).sum(axis=0) % prime)
+        traces = [crt_signed([int(r[k]) for r in plain_residues], primes) for k in range(order + 1)]
+        weighted = [crt_signed([int(r[k]) for r in rooted_residues], primes) for k in range(order + 1)]
+        for q in sums:
+            for k in range(order + 1):
+                sums[q][k] += multiplet_weight(twice_total, q) * traces[k]
+        if twice_total:
+            for q in rooted:
+                factor = Fraction(multiplet_weight(twice_total, q + 1), 2 * twice_total * (twice_total + 2))
+                for k in range(order + 1):
+                    rooted[q][k] += factor * weighted[k]
+    if any(x.denominator != 1 for r in rooted.values() for x in r):
+        raise ArithmeticError("rooted total-spin sums are not integers")
+    return couplings.scale, sums, {q: [int(x) for x in r] for q, r in rooted.items()}
+
+
 def _total_spins(twice_spins: tuple[int, ...]) -> range:
     """Twice every total spin the sites can couple to, from the lowest (0 or 1/2) to the sum of the spins."""
     top = sum(twice_spins)
@@ -383,16 +445,37 @@ def estimated_cost(ham) -> float:
                for s in _total_spins(twice_spins))
 
 
-def _relabelled(ham):
+def _relabelled(ham, last: int | None = None):
     """The integer couplings of ``ham``, its spins (twice) and bonds (u, v, zz) with the sites relabelled by
-    :func:`_bandwidth_order`."""
+    :func:`_bandwidth_order`, or with site ``last`` put last by :func:`_order_ending_at`."""
     couplings = integer_couplings(ham)
-    new_label = _bandwidth_order(ham.n_sites, [(u, v) for u, v, _, _ in couplings.bonds])
+    edges = [(u, v) for u, v, _, _ in couplings.bonds]
+    new_label = _bandwidth_order(ham.n_sites, edges) if last is None else _order_ending_at(ham.n_sites, edges, last)
     twice_spins = [0] * ham.n_sites
     for old, new in enumerate(new_label):
         twice_spins[new] = couplings.twice_spins[old]
     bonds = tuple((new_label[u], new_label[v], zz) for u, v, _, zz in couplings.bonds)
     return couplings, tuple(twice_spins), bonds
+
+
+def _order_ending_at(n: int, edges, last: int) -> list[int]:
+    """A relabelling of the sites (old -> new) with ``last`` last and bonded sites close: breadth-first from
+    ``last``, neighbours by increasing degree (Cuthill-McKee), reversed; sites not reached come first."""
+    neighbours: list[list[int]] = [[] for _ in range(n)]
+    for u, v in edges:
+        neighbours[u].append(v)
+        neighbours[v].append(u)
+    order, seen = [last], {last}
+    for site in order:
+        for other in sorted(neighbours[site], key=lambda x: len(neighbours[x])):
+            if other not in seen:
+                seen.add(other)
+                order.append(other)
+    order += [site for site in range(n) if site not in seen]
+    new_label = [0] * n
+    for new, old in enumerate(reversed(order)):
+        new_label[old] = new
+    return new_label
 
 
 @lru_cache(maxsize=1024)

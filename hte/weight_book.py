@@ -15,8 +15,10 @@ every quantity asked for are skipped (:meth:`WeightBook.negligible`): those of g
 (:mod:`hte.vanishing_weights`), and, for ln Z alone of spin-1/2 Ising bonds, those of graphs with a cut vertex.
 
 Cache rows (:mod:`hte.cache`): key "raw-v1|order=N|<valued key>" holds the JSON {"lnz": [...], "m2": [...],
-"m4": [...]} of P(G) with Fractions as strings; "rooted-v1|order=N|<valued key>" holds {"u1": [[...] per site],
-"u3": ...}.  These formats are shared with existing caches and must not change.
+"m4": [...]} of P(G) with Fractions as strings; "rooted-v2|order=N|<rooted valued key>" holds {"u1": [...],
+"u3": [...]} of one rooted class (one root of one graph).  Rows "rooted-v1|order=N|<valued key>" with
+{"u1": [[...] per site], "u3": ...}, written by earlier versions for every site of a graph, are still read.  These
+formats are shared with existing caches and must not change.
 """
 
 from __future__ import annotations
@@ -27,7 +29,7 @@ import time
 from fractions import Fraction
 from math import lcm
 
-from hte.bridge_factorisation import RootedWeights, factorisable, factorised_weight
+from hte.bridge_factorisation import RootedWeights, factorisable, factorised_weight, rooted_valued
 from hte.canonical import key_to_graph
 from hte.clusters import subgraph_counts
 from hte.exact import QUANTITIES, cluster_cumulants
@@ -38,19 +40,26 @@ from hte.valued_graph import SubgraphCatalogue, ValuedGraph, hamiltonian_of, sit
 from hte.vanishing_weights import insertions_for, lowest_order
 
 CACHE_FORMAT = "raw-v1"
-ROOTED_CACHE_FORMAT = "rooted-v1"  # per-site u_1, u_3 series (hte.rooted_series), beside the raw-v1 row
+ROOTED_CACHE_FORMAT = "rooted-v2"  # u_1, u_3 series of one rooted class (hte.rooted_series)
+ALL_SITES_ROOTED_FORMAT = "rooted-v1"  # u_1, u_3 of every site of a graph, as earlier versions wrote them
 
 
 def _raw_job(args):
-    """Worker: the cluster's own series as JSON text (exact fractions as strings), and its rooted series as
-    JSON text {"u1": [[...] per site], "u3": ...} when asked for (else None)."""
-    key, vg, order, rooted = args
-    if rooted:
-        c, r = rooted_cluster_series(hamiltonian_of(vg), order)
-        rooted_text = json.dumps({name: [[str(x) for x in site] for site in getattr(r, name)] for name in ("u1", "u3")})
+    """Worker: the cluster's own series as JSON text (exact fractions as strings) and, when rooted keys are
+    asked for, a list of (rooted valued graph, JSON text {"u1": [...], "u3": [...]}) holding at least those
+    (every root the kernel gave, one per rooted class), else None."""
+    key, vg, order, wanted = args
+    if not wanted:
+        c, rows = cluster_cumulants(hamiltonian_of(vg), order), None
     else:
-        c, rooted_text = cluster_cumulants(hamiltonian_of(vg), order), None
-    return key, json.dumps({q: [str(x) for x in getattr(c, q)] for q in QUANTITIES}), rooted_text
+        rooted = {}
+        for v in range(vg.graph.n_vertices):
+            rvg = rooted_valued(vg, v)
+            rooted.setdefault(rvg.key, (v, rvg))
+        c, r = rooted_cluster_series(hamiltonian_of(vg), order, [rooted[k][0] for k in wanted])
+        rows = [(rvg, json.dumps({"u1": [str(x) for x in r.u1[v]], "u3": [str(x) for x in r.u3[v]]}))
+                for v, rvg in rooted.values() if v in r.u1]
+    return key, json.dumps({q: [str(x) for x in getattr(c, q)] for q in QUANTITIES}), rows
 
 
 def _decode(text: str) -> dict:
@@ -96,7 +105,8 @@ class WeightBook:
         self.insertions = insertions_for(quantities)
         self.factorise = bridge_factorisation and not self.lnz_only
         self.rooted = RootedWeights(order)
-        self.rooted_wanted: set[str] = set()  # graphs whose rooted series some factorised weight uses
+        # graph key -> {rooted key: rooted valued graph} of the rooted series some factorised weight uses
+        self.rooted_wanted: dict[str, dict[str, ValuedGraph]] = {}
         self.factorised_count = 0
         self.scheduler = scheduler
         self.cache = cache
@@ -160,6 +170,10 @@ class WeightBook:
     def _wants_rooted(self, vg: ValuedGraph) -> bool:
         return vg.key in self.rooted_wanted
 
+    def _missing_roots(self, vg: ValuedGraph) -> list[str]:
+        """The rooted keys of `vg` that some factorised weight uses and that are not known yet."""
+        return [k for k in self.rooted_wanted.get(vg.key, ()) if k not in self.rooted.series]
+
     def _cache_key(self, key: str, kind: str = CACHE_FORMAT) -> str:
         return f"{kind}|order={self.order}|{key}"
 
@@ -168,7 +182,8 @@ class WeightBook:
         the factorised graphs among them (or before them) use; commits as results arrive."""
         for vg in sorted(graphs, key=lambda vg: -vg.graph.n_edges):  # the parts of a graph have fewer bonds
             if not self.negligible(vg) and self.factorised(vg):
-                self.rooted_wanted.update(sub.key for sub in self.rooted.needed_for(vg))
+                for graph, rvg in self.rooted.needed_rooted(vg):
+                    self.rooted_wanted.setdefault(graph.key, {})[rvg.key] = rvg
         todo = {}
         for vg in graphs:
             self.valued.setdefault(vg.key, vg)
@@ -176,35 +191,26 @@ class WeightBook:
                 # a factorised graph, or one whose own weights vanish, is still diagonalised when a larger one
                 # uses its rooted series (these vanish by other rules: one insertion sits at the root)
                 continue
-            if vg.key not in self.raw or (self._wants_rooted(vg) and vg.key not in self.rooted.indexed):
+            if vg.key not in self.raw or self._missing_roots(vg):
                 todo[vg.key] = vg
         if not todo:
             return
         if self.cache is not None:
-            found = self.cache.get_many([self._cache_key(k) for k in todo] + [
-                self._cache_key(k, ROOTED_CACHE_FORMAT) for k, vg in todo.items() if self._wants_rooted(vg)])
-            for k, vg in list(todo.items()):
-                text, rooted_text = found.get(self._cache_key(k)), found.get(self._cache_key(k, ROOTED_CACHE_FORMAT))
-                if text is not None and (rooted_text is not None or not self._wants_rooted(vg)):
-                    self._store_raw(k, _decode(text))
-                    if self._wants_rooted(vg):
-                        self._store_rooted(k, rooted_text)
-                    del todo[k]
-                    self.from_cache += 1
+            self._read_cached(todo)
         if not todo:
             return
-        jobs = [(k, vg, self.order, self._wants_rooted(vg))
+        jobs = [(k, vg, self.order, self._missing_roots(vg) if self._wants_rooted(vg) else None)
                 for k, vg in sorted(todo.items(), key=lambda kv: -len(kv[1].graph.edges))]
         bar = Progress(len(jobs), "cluster series", self.progress)
         pending: list[tuple[str, str]] = []
 
-        def accept(key, text, rooted_text):
+        def accept(key, text, rooted_rows):
             self._store_raw(key, _decode(text))
             self.computed += 1
             pending.append((self._cache_key(key), text))
-            if rooted_text is not None:
-                self._store_rooted(key, rooted_text)
-                pending.append((self._cache_key(key, ROOTED_CACHE_FORMAT), rooted_text))
+            for rvg, row in rooted_rows or ():
+                self._store_rooted(rvg, row)
+                pending.append((self._cache_key(rvg.key, ROOTED_CACHE_FORMAT), row))
             bar.step()
             if self.cache is not None and len(pending) >= 64:
                 self.cache.put_many(pending)
@@ -251,9 +257,34 @@ class WeightBook:
                 self._widen(weight)
                 self.factorised_count += 1
 
-    def _store_rooted(self, key: str, text: str) -> None:
+    def _read_cached(self, todo: dict[str, ValuedGraph]) -> None:
+        """Take from the cache the raw series of the graphs in `todo` and the rooted series they are wanted for;
+        drop from `todo` the graphs found complete."""
+        missing = {k: self._missing_roots(vg) for k, vg in todo.items()}
+        keys = [self._cache_key(k) for k in todo]
+        for k, roots in missing.items():
+            keys += [self._cache_key(r, ROOTED_CACHE_FORMAT) for r in roots]
+            if roots:
+                keys.append(self._cache_key(k, ALL_SITES_ROOTED_FORMAT))
+        found = self.cache.get_many(keys)
+        for k, vg in list(todo.items()):
+            all_sites = found.get(self._cache_key(k, ALL_SITES_ROOTED_FORMAT))
+            if all_sites is not None:
+                data = json.loads(all_sites)
+                self.rooted.add(vg, *([[Fraction(x) for x in site] for site in data[u]] for u in ("u1", "u3")))
+            for r in missing[k]:
+                row = found.get(self._cache_key(r, ROOTED_CACHE_FORMAT))
+                if row is not None:
+                    self._store_rooted(self.rooted_wanted[k][r], row)
+            text = found.get(self._cache_key(k))
+            if text is not None and not self._missing_roots(vg):
+                self._store_raw(k, _decode(text))
+                del todo[k]
+                self.from_cache += 1
+
+    def _store_rooted(self, rvg: ValuedGraph, text: str) -> None:
         data = json.loads(text)
-        self.rooted.add(self.valued[key], *([[Fraction(x) for x in s] for s in data[u]] for u in ("u1", "u3")))
+        self.rooted.add_rooted(rvg, *([Fraction(x) for x in data[u]] for u in ("u1", "u3")))
 
     def _store_raw(self, key: str, series: dict) -> None:
         """Keep a raw series and widen the common denominators to it."""

@@ -7,7 +7,7 @@ A case is spin:shape:sites; shapes: path 0-1-...-(N-1); ring = path plus (N-1, 0
 
 Prints one markdown table row per case: states, bonds, the order of the cluster's symmetry group, seconds of
 the S^z sectors (hte.exact._integer_power_traces, orbit-reduced) and of the blocks
-(hte.total_spin.total_spin_power_sums), the route the cost model of hte.exact._total_spin_pays picks, and whether
+(hte.total_spin.total_spin_power_sums), the route the cost model of hte.exact.total_spin_pays picks, and whether
 both routes gave the same power sums (they must).  Each route runs once, after a warm-up on a small cluster that
 compiles the numba kernel; one process.
 """
@@ -18,7 +18,7 @@ import argparse
 import time
 from fractions import Fraction
 
-from hte.exact import ClusterHamiltonian, _integer_power_traces, _total_spin_pays, site_automorphisms
+from hte.exact import ClusterHamiltonian, _integer_power_traces, total_spin_pays, site_automorphisms
 from hte.total_spin import total_spin_power_sums
 
 DEFAULT_CASES = ("1/2:path:16,1/2:ring:14,1/2:ladder:14,1:path:10,1:ring:10,1:tree:10,1:ladder:10,1:path:11,"
@@ -70,7 +70,7 @@ def main() -> None:
         ham = ClusterHamiltonian(spins=(spin,) * n, bonds=tuple((u, v, 1, 1) for u, v in edges))
         sectors_time, by_sectors = timed(sector_sums, ham, args.order)
         blocks_time, by_blocks = timed(total_spin_power_sums, ham, args.order)
-        pick = "blocks" if _total_spin_pays(ham) else "sectors"
+        pick = "blocks" if total_spin_pays(ham) else "sectors"
         print(f"| {spin_text} | {shape} {n} | {int(2 * spin + 1) ** n} | {len(edges)} | "
               f"{len(site_automorphisms(ham)) + 1} | {sectors_time:.2f} | {blocks_time:.2f} | {pick} | "
               f"{'yes' if by_sectors == by_blocks else 'NO'} |", flush=True)

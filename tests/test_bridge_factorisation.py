@@ -18,6 +18,7 @@ from hte.bridge_factorisation import (
     RootedWeights,
     factorisable,
     factorised_weight,
+    rooted_valued,
     split_at_best_bridge,
     split_for_excess_two,
     split_for_second_order,
@@ -45,7 +46,7 @@ def _lattice_graphs(name: str, order: int, spin, couplings: dict, anisotropy) ->
 
 def _add_rooted(rooted: RootedWeights, graphs, order: int) -> None:
     for vg in graphs:
-        if vg.key not in rooted.indexed:
+        if any(rooted_valued(vg, v).key not in rooted.series for v in range(vg.graph.n_vertices)):
             _, series = rooted_cluster_series(hamiltonian_of(vg), order)
             rooted.add(vg, series.u1, series.u3)
 

@@ -19,7 +19,7 @@ from hte.exact import (
     TOTAL_SPIN_MIN_STATES,
     ClusterHamiltonian,
     _integer_power_traces,
-    _total_spin_pays,
+    total_spin_pays,
     cluster_cumulants,
     cumulants_from_integer_moments,
 )
@@ -143,7 +143,7 @@ def test_large_cluster_takes_the_total_spin_route_with_the_same_result(spin, n):
     # gives the same moments.
     bonds = tuple((i, i + 1, Fraction(1 + i % 3, 2), Fraction(1 + i % 3, 2)) for i in range(n - 1)) + ((0, 3, -1, -1),)
     ham = ClusterHamiltonian(spins=(spin,) * n, bonds=bonds)
-    assert (2 * spin + 1) ** n >= TOTAL_SPIN_MIN_STATES and _total_spin_pays(ham)
+    assert (2 * spin + 1) ** n >= TOTAL_SPIN_MIN_STATES and total_spin_pays(ham)
     scale, sums = sector_power_sums(ham, 10)
     assert cluster_cumulants(ham, 10) == cumulants_from_integer_moments(sums, scale, 10)
 
