@@ -257,6 +257,35 @@ def test_cache_rows_without_rooted_series_are_completed(tmp_path):
     assert factorised.stats["cluster_series_computed"] > 0
 
 
+def test_rooted_rows_of_every_site_written_by_earlier_versions_are_read(tmp_path):
+    # Earlier versions cached the rooted series of every site of a graph in one "rooted-v1" row; with only such
+    # rows (the per-class "rooted-v2" rows removed) a second run computes nothing and gets the same weights.
+    import json
+
+    from hte.cache import WeightCache
+    from hte.weight_book import ALL_SITES_ROOTED_FORMAT, ROOTED_CACHE_FORMAT
+
+    order = 7
+    graphs = _lattice_graphs("kagome", order, HALF, {"J1": (Fraction(1), Fraction(1))}, 0)
+    with WeightCache(tmp_path) as cache:
+        first = WeightBook(order, cache=cache)
+        first.ensure_weights(graphs)
+        assert first.factorised_count > 0 and first.rooted_wanted
+        rows = []
+        for key in first.rooted_wanted:
+            vg = first.valued[key]
+            _, series = rooted_cluster_series(hamiltonian_of(vg), order)
+            rows.append((f"{ALL_SITES_ROOTED_FORMAT}|order={order}|{key}",
+                         json.dumps({u: [[str(x) for x in getattr(series, u)[v]] for v in range(vg.graph.n_vertices)]
+                                     for u in ("u1", "u3")})))
+        assert cache.prune(ROOTED_CACHE_FORMAT) > 0
+        cache.put_many(rows)
+        second = WeightBook(order, cache=cache)
+        second.ensure_weights(graphs)
+    assert second.computed == 0
+    assert all(second.weight(vg.key) == first.weight(vg.key) for vg in graphs if not first.negligible(vg))
+
+
 def test_symbolic_demo_lattice_agrees_with_and_without_the_factorisation():
     # The demo's layered kagome, symbolic in J1, Jd, Jperp and the interlayer occupation: the factorised top
     # classes are evaluated at interpolation points like any other class.

@@ -31,6 +31,7 @@ from hte.total_spin import (
     _position_operator,
     applies,
     multiplet_weight,
+    rooted_power_sums,
     total_spin_power_sums,
 )
 
@@ -222,3 +223,20 @@ def test_isotropic_clusters_of_any_spin_apply_and_anisotropic_ones_do_not():
     assert applies(ClusterHamiltonian(spins=(HALF, Fraction(1)), bonds=bond))
     assert not applies(ClusterHamiltonian(spins=(HALF, HALF), bonds=((0, 1, Fraction(1, 2), 1),)))
     assert not applies(ClusterHamiltonian(spins=(Fraction(1), Fraction(1)), bonds=bond, anisotropy=(1, 0)))
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_rooted_sums_equal_those_of_the_sz_sectors(seed):
+    # Each root coupled last (S_a.S_tot diagonal, projection theorem) against the S^z sectors, where S^z_a is
+    # diagonal: same u_1, u_3 series of every site, exactly.
+    from hte.rooted_series import _joint_cumulants, _rooted_by_sectors
+
+    rng = random.Random(100 + seed)
+    spins = SPIN_SETS[seed % len(SPIN_SETS)]
+    ham = random_heisenberg(rng, rng.randint(2, 7 if max(spins) < 1 else 5), rng.randint(0, 3), spins)
+    _, by_sectors = _rooted_by_sectors(ham, 8)
+    for root in range(ham.n_sites):
+        scale, sums, rooted = rooted_power_sums(ham, root, 8)
+        assert (scale, sums) == total_spin_power_sums(ham, 8)
+        (u1,), (u3,) = _joint_cumulants(sums[0], sums[2], [rooted[1]], [rooted[3]], scale, 8)
+        assert u1 == by_sectors.u1[root] and u3 == by_sectors.u3[root]
