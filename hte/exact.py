@@ -215,9 +215,9 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     return cumulants_from_integer_moments(sums, scale, order)
 
 
-def total_spin_pays(ham: ClusterHamiltonian, passes: int = 1) -> bool:
-    """True when ``passes`` traces over the total-spin blocks (:mod:`hte.total_spin`; one per root for rooted
-    series) should be cheaper than the S^z sectors: for isotropic clusters of TOTAL_SPIN_MIN_STATES states or
+def total_spin_pays(ham: ClusterHamiltonian, passes: float = 1) -> bool:
+    """True when ``passes`` traces over the total-spin blocks (:mod:`hte.total_spin`; for rooted series, one per
+    root, each weighted by its relative cost) should be cheaper than the S^z sectors: for isotropic clusters of TOTAL_SPIN_MIN_STATES states or
     more, by a cost model.
 
     Per pair of powers and per prime, a sector costs about dim^2 (1 + F) / |G| multiply-adds: a row holds the
