@@ -215,10 +215,11 @@ def cluster_cumulants(ham: ClusterHamiltonian, order: int) -> ClusterCumulants:
     return cumulants_from_integer_moments(sums, scale, order)
 
 
-def total_spin_pays(ham: ClusterHamiltonian, passes: float = 1) -> bool:
-    """True when ``passes`` traces over the total-spin blocks (:mod:`hte.total_spin`; for rooted series, one per
-    root, each weighted by its relative cost) should be cheaper than the S^z sectors: for isotropic clusters of TOTAL_SPIN_MIN_STATES states or
-    more, by a cost model.
+def total_spin_pays(ham: ClusterHamiltonian, roots=None) -> bool:
+    """True when the total-spin blocks (:mod:`hte.total_spin`) should be cheaper than the S^z sectors, for
+    isotropic clusters of TOTAL_SPIN_MIN_STATES states or more, by a cost model: one block pass for the cluster's
+    series, or with ``roots`` one rooted pass per root (:func:`hte.total_spin.rooted_power_sums`) against the
+    sectors that give every root at once (:mod:`hte.rooted_series`).
 
     Per pair of powers and per prime, a sector costs about dim^2 (1 + F) / |G| multiply-adds: a row holds the
     diagonal and F flips, F = sum_b 2 (2S_u)(2S_v) / ((2S_u + 1)(2S_v + 1)) on average (E/2 for E bonds between
@@ -236,7 +237,9 @@ def total_spin_pays(ham: ClusterHamiltonian, passes: float = 1) -> bool:
     sectors = spin_sectors(twice, nonnegative_only=True)
     sector_cost = sum(sector.dim**2 * (1 + flips) / (group * (2 if sector.twice_magnetization == 0 else 1))
                       for sector in sectors)
-    return passes * total_spin.estimated_cost(ham) < sector_cost
+    if roots is None:
+        return total_spin.estimated_cost(ham) < sector_cost
+    return sum(total_spin.estimated_cost(ham, root) for root in roots) < sector_cost
 
 
 def _integer_power_traces(

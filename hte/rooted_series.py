@@ -56,11 +56,6 @@ from hte.modular import (
 from hte.spin_matrices import gauge_weights_mod, integer_couplings, integer_sector_matrix, spin_sectors
 
 
-# A rooted total-spin pass (diagonals, the root-last order of the sites, a larger bound) costs this many plain
-# block passes: measured 1.4-1.7 on five spin-1 kagome clusters of 9 and 10 sites at order 11 (README).
-ROOTED_PASS_COST = 1.5
-
-
 @dataclass(frozen=True)
 class RootedSeries:
     """Coefficients of beta^n, n = 0..order, of u_1(a) and u_3(a) (module docstring) for sites a.
@@ -92,7 +87,7 @@ def rooted_cluster_series(ham: ClusterHamiltonian, order: int,
     """
     order = check_order(order)
     wanted = list(range(ham.n_sites)) if roots is None else sorted(set(roots))
-    if wanted and total_spin_pays(ham, passes=ROOTED_PASS_COST * len(wanted)):
+    if wanted and total_spin_pays(ham, roots=wanted):
         return _rooted_by_total_spin(ham, order, wanted)
     return _rooted_by_sectors(ham, order)
 
