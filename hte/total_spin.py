@@ -196,14 +196,12 @@ def _local_exchange(j0: int, a: int, b: int, total: int) -> dict[int, tuple[tupl
 
 @dataclass(frozen=True)
 class _Paths:
-    """The highest-weight paths of total spin ``twice_total``/2 for sites of spins ``twice_spins``/2 in order.
+    """The highest-weight paths of one total spin for sites of given spins in a given order (:func:`_paths`).
 
     ``levels[p, l]`` is twice j_l of path p (l = 0..N, lexicographic order); a path's index is
     sum_l offsets[l][j_{l-1}, j_l] (l = 1..N), ``offsets[0]`` unused.
     """
 
-    twice_spins: tuple[int, ...]
-    twice_total: int
     levels: np.ndarray
     offsets: tuple[np.ndarray, ...]
 
@@ -247,7 +245,7 @@ def _paths(twice_spins: tuple[int, ...], twice_total: int) -> _Paths:
         parents = np.repeat(np.arange(levels.shape[0]), repeat)
         rank = np.arange(parents.size) - np.repeat(np.cumsum(repeat) - repeat, repeat)
         levels = np.column_stack([levels[parents], kids[column[parents], rank]])
-    return _Paths(twice_spins, twice_total, levels, tuple(offsets))
+    return _Paths(levels, tuple(offsets))
 
 
 def _residue(value: Fraction, prime: int) -> int:
@@ -326,16 +324,19 @@ def _gauge_mod(twice_spins: tuple[int, ...], twice_total: int, prime: int) -> tu
     """Row and column weights c^2 and c^-2 of every path (c^2 its squared norm) modulo ``prime``, float64."""
     paths = _paths(twice_spins, twice_total)
     weight = np.ones(paths.size, dtype=np.int64)
+    inverse = np.ones(paths.size, dtype=np.int64)
     for level, spin in enumerate(twice_spins):
         before, after = paths.levels[:, level], paths.levels[:, level + 1]
-        table = np.zeros((int(before.max(initial=0)) + 1, int(after.max(initial=0)) + 1), dtype=np.int64)
+        shape = (int(before.max(initial=0)) + 1, int(after.max(initial=0)) + 1)
+        table, inverse_table = np.zeros(shape, dtype=np.int64), np.zeros(shape, dtype=np.int64)
         for j in np.unique(before):
             for k in _couplings_allowed(int(j), spin):
-                if k < table.shape[1]:
+                if k < shape[1]:
                     table[j, k] = _residue(_step_norm(int(j), spin, k), prime)
+                    inverse_table[j, k] = pow(int(table[j, k]), -1, prime)
         weight = weight * table[before, after] % prime
-    inverse = np.array([pow(int(w), -1, prime) for w in weight], dtype=np.float64)
-    return weight.astype(np.float64), inverse
+        inverse = inverse * inverse_table[before, after] % prime
+    return weight.astype(np.float64), inverse.astype(np.float64)
 
 
 def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
@@ -344,29 +345,10 @@ def total_spin_power_sums(ham, order: int) -> tuple[int, dict[int, list[int]]]:
     Same result as summing the S^z-sector traces of :func:`hte.exact._integer_power_traces`; the input of
     :func:`hte.exact.cumulants_from_integer_moments`.
     """
-    from hte.exact import propagation_block  # hte.exact calls this module
-
     couplings, twice_spins, bonds = _relabelled(ham)
     sums = {q: [0] * (order + 1) for q in (0, 2, 4)}
-    for twice_total in _total_spins(twice_spins):
-        size = _paths(twice_spins, twice_total).size
-        if not size:
-            continue
-        bits = prime_bits_for(_pattern_size(twice_spins, twice_total, bonds)[0], 2**62, size)
-        primes = primes_exceeding(bits, size * max(couplings.spectral_bound, 1) ** order)
-        residues = []
-        for prime in primes:
-            matrix = _block_matrix(twice_spins, twice_total, bonds, prime)
-            row_weight, column_weight = _gauge_mod(twice_spins, twice_total, prime)
-            residues.append(power_traces_mod(
-                matrix.indptr.astype(np.int64), matrix.indices.astype(np.int64),
-                symmetric_residues(matrix.data.astype(np.int64), prime), row_weight,
-                np.arange(size, dtype=np.int64), column_weight, order, prime, propagation_block(size)))
-        traces = [crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)]
-        for q in sums:
-            weight = multiplet_weight(twice_total, q)
-            for k in range(order + 1):
-                sums[q][k] += weight * traces[k]
+    for twice_total, traces, _ in _block_traces(couplings, twice_spins, bonds, order):
+        _add_multiplets(sums, twice_total, traces)
     return couplings.scale, sums
 
 
@@ -374,37 +356,17 @@ def rooted_power_sums(ham, root: int, order: int) -> tuple[int, dict[int, list[i
     """scale, the sums s_q of :func:`total_spin_power_sums` and r_q[k] = sum_m (2m)^q Tr_m(2 S^z_root A^k),
     q = 1, 3, k = 0..order (the input of :func:`hte.rooted_series._joint_cumulants` for one site), for a cluster
     where :func:`applies`.  The sites are ordered with ``root`` last (module docstring)."""
-    from hte.exact import propagation_block  # hte.exact calls this module
-
     couplings, twice_spins, bonds = _relabelled(ham, last=root)
     twice_root = twice_spins[-1]
+
+    def eight_y(paths: _Paths, twice_total: int) -> np.ndarray:
+        rest = paths.levels[:, -2]
+        return twice_total * (twice_total + 2) - rest * (rest + 2) + twice_root * (twice_root + 2)
+
     sums = {q: [0] * (order + 1) for q in (0, 2, 4)}
     rooted = {q: [Fraction(0)] * (order + 1) for q in (1, 3)}
-    for twice_total in _total_spins(twice_spins):
-        paths = _paths(twice_spins, twice_total)
-        if not paths.size:
-            continue
-        rest = paths.levels[:, -2]
-        eight_y = twice_total * (twice_total + 2) - rest * (rest + 2) + twice_root * (twice_root + 2)
-        bits = prime_bits_for(_pattern_size(twice_spins, twice_total, bonds)[0], 2**62, paths.size)
-        bound = paths.size * max(couplings.spectral_bound, 1) ** order * max(int(np.abs(eight_y).max()), 1)
-        primes = primes_exceeding(bits, bound)
-        plain_residues, rooted_residues = [], []
-        for prime in primes:
-            matrix = _block_matrix(twice_spins, twice_total, bonds, prime)
-            row_weight, column_weight = _gauge_mod(twice_spins, twice_total, prime)
-            diagonals = power_diagonals_mod(
-                matrix.indptr.astype(np.int64), matrix.indices.astype(np.int64),
-                symmetric_residues(matrix.data.astype(np.int64), prime), row_weight,
-                np.arange(paths.size, dtype=np.int64), column_weight, order, prime, propagation_block(paths.size))
-            # diagonals < p and |8Y| mod p < p: each product < 2**52, a column of dim of them < 2**63
-            plain_residues.append(diagonals.sum(axis=0) % prime)
-            rooted_residues.append(((eight_y % prime)[:, None] * diagonals % prime).sum(axis=0) % prime)
-        traces = [crt_signed([int(r[k]) for r in plain_residues], primes) for k in range(order + 1)]
-        weighted = [crt_signed([int(r[k]) for r in rooted_residues], primes) for k in range(order + 1)]
-        for q in sums:
-            for k in range(order + 1):
-                sums[q][k] += multiplet_weight(twice_total, q) * traces[k]
+    for twice_total, traces, weighted in _block_traces(couplings, twice_spins, bonds, order, eight_y):
+        _add_multiplets(sums, twice_total, traces)
         if twice_total:
             for q in rooted:
                 factor = Fraction(multiplet_weight(twice_total, q + 1), 2 * twice_total * (twice_total + 2))
@@ -413,6 +375,55 @@ def rooted_power_sums(ham, root: int, order: int) -> tuple[int, dict[int, list[i
     if any(x.denominator != 1 for r in rooted.values() for x in r):
         raise ArithmeticError("rooted total-spin sums are not integers")
     return couplings.scale, sums, {q: [int(x) for x in r] for q, r in rooted.items()}
+
+
+def _block_traces(couplings, twice_spins: tuple[int, ...], bonds, order: int, path_weights=None):
+    """For every total spin with paths: (twice_total, [Tr A_S^k], [Tr(A_S^k W)] or None), k = 0..order, exact
+    integers, W = diag(path_weights(paths, twice_total)) (integers per path) when ``path_weights`` is given.
+
+    Modulo primes whose product exceeds 2 dim R^order max|W| (:mod:`hte.modular`); with weights the diagonals of
+    the powers are kept (:func:`hte.modular.power_diagonals_mod`) and summed twice, else the traces directly.
+    """
+    from hte.exact import propagation_block  # hte.exact calls this module
+
+    for twice_total in _total_spins(twice_spins):
+        paths = _paths(twice_spins, twice_total)
+        if not paths.size:
+            continue
+        weights = None if path_weights is None else path_weights(paths, twice_total)
+        bits = prime_bits_for(_pattern_size(twice_spins, twice_total, bonds)[0], 2**62, paths.size)
+        bound = paths.size * max(couplings.spectral_bound, 1) ** order
+        primes = primes_exceeding(bits, bound if weights is None else bound * max(int(np.abs(weights).max()), 1))
+        plain, weighted = [], []
+        for prime in primes:
+            matrix = _block_matrix(twice_spins, twice_total, bonds, prime)
+            row_weight, column_weight = _gauge_mod(twice_spins, twice_total, prime)
+            arguments = (matrix.indptr.astype(np.int64), matrix.indices.astype(np.int64),
+                         symmetric_residues(matrix.data.astype(np.int64), prime), row_weight,
+                         np.arange(paths.size, dtype=np.int64), column_weight, order, prime,
+                         propagation_block(paths.size))
+            if weights is None:
+                plain.append(power_traces_mod(*arguments))
+                continue
+            diagonals = power_diagonals_mod(*arguments)
+            # diagonals < p and |W| mod p < p: each product < 2**52, a column of dim of them < 2**63
+            plain.append(diagonals.sum(axis=0) % prime)
+            weighted.append(((weights % prime)[:, None] * diagonals % prime).sum(axis=0) % prime)
+        yield (twice_total, _rebuilt(plain, primes, order),
+               None if weights is None else _rebuilt(weighted, primes, order))
+
+
+def _rebuilt(residues, primes, order: int) -> list[int]:
+    """The integers k = 0..order from their residues modulo ``primes`` (one array per prime)."""
+    return [crt_signed([int(r[k]) for r in residues], primes) for k in range(order + 1)]
+
+
+def _add_multiplets(sums: dict[int, list[int]], twice_total: int, traces: list[int]) -> None:
+    """sums[q][k] += w_q(S) Tr A_S^k: the block of total spin twice_total/2 stands for its multiplets."""
+    for q in sums:
+        weight = multiplet_weight(twice_total, q)
+        for k in range(len(traces)):
+            sums[q][k] += weight * traces[k]
 
 
 def _total_spins(twice_spins: tuple[int, ...]) -> range:
